@@ -1,0 +1,59 @@
+"""The `reviewer` command line: `main(argv) -> int`, one subcommand per module in reviewer.commands."""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import pkgutil
+import sys
+
+from reviewer import __version__
+from reviewer.errors import BadInput
+
+# Order in `reviewer --help`; modules not listed here are appended alphabetically.
+ORDER = ("demo", "info", "scan", "review", "export", "kinetics")
+
+
+def _command_modules() -> list[str]:
+    import reviewer.commands as pkg
+
+    found = {m.name for m in pkgutil.iter_modules(pkg.__path__) if not m.name.startswith("_")}
+    return [n for n in ORDER if n in found] + sorted(found.difference(ORDER))
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="reviewer",
+        description="Find, confirm and time-stamp growth events in long microscopy movies.",
+    )
+    parser.add_argument("--version", action="version", version=f"reviewer {__version__}")
+    parser.add_argument("--debug", action="store_true", help="show a full traceback on errors")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    for name in _command_modules():
+        importlib.import_module(f"reviewer.commands.{name}").register(sub)
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    argv = list(sys.argv[1:] if argv is None else argv)
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if not getattr(args, "func", None):
+        parser.print_help()
+        return 2
+    try:
+        return int(args.func(args) or 0)
+    except BadInput as exc:
+        if args.debug:
+            raise
+        print(f"reviewer: {exc}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("reviewer: interrupted", file=sys.stderr)
+        return 130
+    except BrokenPipeError:
+        return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,1 @@
+"""The headless subcommands of `reviewer`; each module offers `register(subparsers)`."""

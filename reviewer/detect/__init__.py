@@ -1,0 +1,1 @@
+"""Scoring and events: one streaming pass over a movie scores every frame and proposes candidates."""

@@ -1,0 +1,1 @@
+"""Kinetics: waiting times, rates and growth velocity from the event table."""

@@ -1,0 +1,60 @@
+"""Where reviewer keeps caches, sessions and user settings.
+
+- Cache (derived data, safe to delete): ``$REVIEWER_CACHE_DIR`` or ``$XDG_CACHE_HOME/reviewer``
+  (default ``~/.cache/reviewer``), one folder per movie fingerprint.
+- Sessions (review decisions): ``<movie>.review/`` beside the movie when that folder is writable, else
+  ``$REVIEWER_DATA_DIR`` or ``$XDG_DATA_HOME/reviewer/sessions/<fingerprint>``.
+- Settings (key maps, label sets): ``$REVIEWER_CONFIG_DIR`` or ``$XDG_CONFIG_HOME/reviewer``.
+"""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+
+def _xdg(var: str, own: str, default: str) -> Path:
+    if os.environ.get(own):
+        return Path(os.environ[own]).expanduser()
+    base = os.environ.get(var) or str(Path.home() / default)
+    return Path(base).expanduser() / "reviewer"
+
+
+def cache_root() -> Path:
+    return _xdg("XDG_CACHE_HOME", "REVIEWER_CACHE_DIR", ".cache")
+
+
+def data_root() -> Path:
+    return _xdg("XDG_DATA_HOME", "REVIEWER_DATA_DIR", ".local/share")
+
+
+def config_root() -> Path:
+    return _xdg("XDG_CONFIG_HOME", "REVIEWER_CONFIG_DIR", ".config")
+
+
+def cache_dir(fingerprint: str, create: bool = True) -> Path:
+    """The cache folder of one movie, keyed by its fingerprint."""
+    path = cache_root() / fingerprint
+    if create:
+        path.mkdir(parents=True, exist_ok=True)
+    return path
+
+
+def _writable(folder: Path) -> bool:
+    return folder.is_dir() and os.access(folder, os.W_OK | os.X_OK)
+
+
+def session_dir(movie_path: str | os.PathLike, fingerprint: str,
+                override: str | os.PathLike | None = None) -> Path:
+    """The session folder of one movie (created if missing)."""
+    if override is not None:
+        path = Path(override).expanduser()
+    else:
+        movie = Path(movie_path).resolve()
+        beside = movie.parent / (movie.name + ".review")
+        if _writable(beside) or (not beside.exists() and _writable(movie.parent)):
+            path = beside
+        else:
+            path = data_root() / "sessions" / fingerprint
+    path.mkdir(parents=True, exist_ok=True)
+    return path

@@ -1,0 +1,1 @@
+"""The annotation store: the journal of review decisions, sessions, and the CSV event table."""
