@@ -1,0 +1,101 @@
+"""Waiting-time statistics: intervals, CV, exact rate intervals, exponential / gamma fits, GOF.
+
+Every function takes plain numpy arrays; summary.py puts them together per group.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+
+import numpy as np
+from scipy import optimize, special, stats
+
+CHI2_95_1DF = float(stats.chi2.ppf(0.95, 1))  # 3.841: profile-likelihood 95 % cut
+
+
+def cv_of(x: np.ndarray, axis: int = -1) -> np.ndarray:
+    """Coefficient of variation SD(ddof=1)/mean along `axis`."""
+    return np.std(x, axis=axis, ddof=1) / np.mean(x, axis=axis)
+
+
+def rate_ci95(k: int, span: float) -> tuple[float, float]:
+    """Exact 95 % interval of a Poisson rate from k complete intervals over `span`: 2*rate*span ~ chi2(2k)."""
+    return (float(stats.chi2.ppf(0.025, 2 * k)) / (2 * span),
+            float(stats.chi2.ppf(0.975, 2 * k)) / (2 * span))
+
+
+def garwood_ci95(n: int) -> tuple[float, float]:
+    """Exact (Garwood 1936) 95 % limits of a Poisson mean from an observed count n."""
+    lo = 0.0 if n == 0 else float(stats.chi2.ppf(0.025, 2 * n)) / 2
+    return lo, float(stats.chi2.ppf(0.975, 2 * n + 2)) / 2
+
+
+def cv_bootstrap_ci95(x: np.ndarray, seed: int, n_resamples: int) -> tuple[float, float, str]:
+    """BCa bootstrap 95 % interval of the CV (percentile when BCa is undefined); and the method."""
+    method = "BCa"
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = stats.bootstrap((x,), cv_of, n_resamples=n_resamples, vectorized=True,
+                              method="BCa", rng=np.random.default_rng(seed))
+        lo, hi = res.confidence_interval
+        if not (np.isfinite(lo) and np.isfinite(hi)):
+            method = "percentile"
+            res = stats.bootstrap((x,), cv_of, n_resamples=n_resamples, vectorized=True,
+                                  method="percentile", rng=np.random.default_rng(seed))
+            lo, hi = res.confidence_interval
+    return float(lo), float(hi), method
+
+
+def gamma_profile_loglik(shape: float, x: np.ndarray) -> float:
+    """Gamma log-likelihood at `shape` with the scale at its MLE for that shape (mean / shape)."""
+    n, mean = x.size, float(np.mean(x))
+    return float((shape - 1) * np.sum(np.log(x)) - n * shape - n * shape * math.log(mean / shape)
+                 - n * special.gammaln(shape))
+
+
+def gamma_shape_ci95(x: np.ndarray, shape_hat: float) -> tuple[float, float]:
+    """Profile-likelihood 95 % interval of the gamma shape: 2*(l(max) - l(a)) <= chi2_0.95(1)."""
+    top = gamma_profile_loglik(shape_hat, x)
+
+    def drop(log_a: float) -> float:
+        return 2 * (top - gamma_profile_loglik(math.exp(log_a), x)) - CHI2_95_1DF
+
+    centre = math.log(shape_hat)
+    bounds = []
+    for direction in (-1.0, 1.0):
+        step = 0.5
+        while drop(centre + direction * step) < 0:
+            step *= 2
+            if step > 60:
+                raise ArithmeticError("gamma shape interval does not close")
+        a, b = sorted((centre, centre + direction * step))
+        bounds.append(math.exp(optimize.brentq(drop, a, b, xtol=1e-12)))
+    return bounds[0], bounds[1]
+
+
+def fit_exponential(x: np.ndarray) -> float:
+    """Maximum-likelihood scale (mean wait) of an exponential with location 0."""
+    return float(stats.expon.fit(x, floc=0)[1])
+
+
+def fit_gamma(x: np.ndarray) -> tuple[float, float]:
+    """Maximum-likelihood (shape, scale) of a gamma with location 0."""
+    shape, _, scale = stats.gamma.fit(x, floc=0)
+    return float(shape), float(scale)
+
+
+def gamma_vs_exponential_p(x: np.ndarray, shape: float, scale: float) -> float:
+    """Likelihood-ratio p value of gamma against exponential (2*dlnL ~ chi2 with 1 d.f.)."""
+    l_gamma = float(np.sum(stats.gamma.logpdf(x, shape, scale=scale)))
+    l_expon = float(np.sum(stats.expon.logpdf(x, scale=np.mean(x))))
+    return float(stats.chi2.sf(max(0.0, 2 * (l_gamma - l_expon)), 1))
+
+
+def gof_exponential_p(x: np.ndarray, seed: int, n_samples: int) -> float:
+    """KS goodness of fit to an exponential (location 0, scale fitted), p by parametric bootstrap."""
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        res = stats.goodness_of_fit(stats.expon, x, known_params={"loc": 0}, statistic="ks",
+                                    n_mc_samples=n_samples, rng=np.random.default_rng(seed))
+    return float(res.pvalue)

@@ -1,0 +1,96 @@
+"""summarise(times) -> one dict with every figure of a group of events (the --json keys)."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from reviewer.kinetics import reading, stats
+
+BOOT_RESAMPLES = 9_999  # bootstrap resamples for the CV interval
+GOF_SAMPLES = 9_999     # parametric-bootstrap samples for the exponential goodness of fit
+
+
+def _num(v: float | None) -> float | None:
+    return None if v is None or not math.isfinite(v) else float(v)
+
+
+def _pair(lo: float, hi: float, factor: float = 1.0) -> list[float] | None:
+    lo, hi = _num(lo * factor), _num(hi * factor)
+    return None if lo is None or hi is None else [lo, hi]
+
+
+def summarise(times_s, duration_s: float | None = None, layer_nm: float | None = None, *,
+              frame_s: float | None = None, seed: int = 0, n_boot: int = BOOT_RESAMPLES,
+              n_gof: int = GOF_SAMPLES, multi_frame_events: int = 0) -> dict:
+    """Waiting-time statistics of sorted event times (seconds).
+
+    duration_s: the recording's length T (count rate n/T with its Garwood interval; None -> null).
+    layer_nm: layer height (velocity = rate x height). frame_s: one frame (for the pitfall note).
+    Raises ValueError for fewer than two events, non-finite, decreasing or all-equal times.
+    """
+    t = np.asarray(times_s, dtype=float).ravel()
+    if t.size < 2:
+        raise ValueError(f"{t.size} event(s): two events are the minimum for an interval")
+    if not np.isfinite(t).all():
+        raise ValueError("event times must be finite numbers")
+    x = np.diff(t)
+    if (x < 0).any():
+        raise ValueError("event times must be in increasing order")
+    n, k = int(t.size), int(x.size)
+    span = float(t[-1] - t[0])
+    if span <= 0:
+        raise ValueError(f"all {n} events at the same time: the span is zero")
+    mean = float(np.mean(x))
+    sd = float(np.std(x, ddof=1)) if k >= 2 else None
+    cv = sd / mean if sd is not None else None
+    out: dict = {
+        "events": n, "intervals": k, "first_time_s": float(t[0]), "last_time_s": float(t[-1]),
+        "span_s": span, "interval_mean_s": mean, "interval_median_s": float(np.median(x)),
+        "interval_sd_s": sd, "interval_cv": cv, "interval_cv_ci95": None,
+        "interval_cv_ci_method": None,
+        "rate_per_s": k / span, "rate_ci95_per_s": _pair(*stats.rate_ci95(k, span)),
+        "rate_method": "k/span over the complete intervals; exact chi-square interval (2k d.f.)",
+        "duration_s": _num(duration_s) if duration_s else None,
+        "count_rate_per_s": None, "count_rate_ci95_per_s": None,
+        "count_rate_method": "n/T over the whole recording; Garwood exact Poisson interval",
+        "exponential_scale_s": _num(stats.fit_exponential(x)), "exponential_rate_per_s": None,
+        "gamma_shape": None, "gamma_scale_s": None, "gamma_shape_ci95": None,
+        "gamma_shape_ci_method": "profile likelihood (chi-square 1 d.f.)",
+        "gamma_vs_exponential_p": None, "gof_p_exponential": None,
+        "gof_method": (f"KS against an exponential with fitted scale, parametric bootstrap "
+                       f"({n_gof} samples, seed {seed})"),
+        "poisson_cv_range95": None, "layer_nm": _num(layer_nm) if layer_nm else None,
+        "velocity_nm_per_s": None, "velocity_ci95_nm_per_s": None, "seed": seed,
+    }
+    if out["exponential_scale_s"]:
+        out["exponential_rate_per_s"] = 1.0 / out["exponential_scale_s"]
+    T = out["duration_s"]
+    if T is not None:
+        out["count_rate_per_s"] = n / T
+        out["count_rate_ci95_per_s"] = _pair(*stats.garwood_ci95(n), 1.0 / T)
+    if k >= 2 and sd is not None:
+        lo, hi, method = stats.cv_bootstrap_ci95(x, seed, n_boot)
+        out["interval_cv_ci95"] = _pair(lo, hi)
+        out["interval_cv_ci_method"] = f"bootstrap {method}, {n_boot} resamples, seed {seed}"
+        band = reading.poisson_cv_range(k)
+        out["poisson_cv_range95"] = list(band) if band else None
+    zeros = int(np.sum(x == 0))
+    if k >= 2 and zeros == 0 and sd:
+        shape, scale = stats.fit_gamma(x)
+        out["gamma_shape"], out["gamma_scale_s"] = _num(shape), _num(scale)
+        try:
+            out["gamma_shape_ci95"] = _pair(*stats.gamma_shape_ci95(x, shape))
+        except (ArithmeticError, ValueError):
+            out["gamma_shape_ci95"] = None
+        out["gamma_vs_exponential_p"] = _num(stats.gamma_vs_exponential_p(x, shape, scale))
+    if k >= 3 and sd:
+        out["gof_p_exponential"] = _num(stats.gof_exponential_p(x, seed, n_gof))
+    if out["layer_nm"] is not None:
+        out["velocity_nm_per_s"] = out["rate_per_s"] * out["layer_nm"]
+        out["velocity_ci95_nm_per_s"] = [v * out["layer_nm"] for v in out["rate_ci95_per_s"]]
+    out["reading"] = reading.sentence(out)
+    out["pitfalls"] = reading.pitfalls(out, frame_s=frame_s, zero_intervals=zeros,
+                                       multi_frame_events=multi_frame_events)
+    return out
