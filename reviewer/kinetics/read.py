@@ -63,7 +63,7 @@ def _plain(text: str) -> str:
 def _numbers(df: pd.DataFrame, column: str) -> tuple[np.ndarray, np.ndarray]:
     """Float values of a text column and a mask of the cells that were filled but not numbers."""
     text = df[column].str.strip()
-    values = pd.to_numeric(text.where(text != ""), errors="coerce").to_numpy(float)
+    values = pd.to_numeric(text.where(text != ""), errors="coerce").to_numpy(float, copy=True)
     bad = (text != "").to_numpy() & ~np.isfinite(values)
     return values, bad
 
@@ -135,11 +135,12 @@ def select_events(df: pd.DataFrame, label: str | None = None,
         path = df.attrs.get("path", "events")
         by_status = Counter(df["status"].replace("", "(none)"))
         held = ", ".join(f"{n} {s}" for s, n in by_status.most_common()) or "no rows"
-        want = " or ".join(statuses) + (f" with label {label!r}" if label is not None else "")
+        want = " or ".join(statuses) + " events" + (f" with label {label!r}" if label is not None
+                                                     else "")
         extra = ""
         if label is not None:
             labels = Counter(df.loc[df["status"].isin(statuses), "label"].replace("", "(none)"))
             if labels:
                 extra = "; their labels: " + ", ".join(f"{lab} {n}" for lab, n in labels.most_common())
-        raise BadInput(f"{path}: no {want} events (the table has {held}{extra})")
+        raise BadInput(f"{path}: no {want} (the table has {held}{extra})")
     return chosen

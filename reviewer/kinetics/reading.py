@@ -6,7 +6,8 @@ from functools import lru_cache
 
 import numpy as np
 
-CV_SIMULATIONS = 10_000   # Poisson processes simulated per number of intervals
+CV_SIMULATIONS = 40_000   # Poisson processes simulated per number of intervals (fewer for large k,
+CV_SIM_BUDGET = 20_000_000  # ... keeping simulations x k within this budget, at least 10,000)
 CV_SIM_SEED = 20_250_505  # fixed, so the reference range does not move with --seed
 CV_SIM_MAX_K = 2_000      # above this, the normal approximation 1 +- 1.96/sqrt(k) is used
 MIN_INTERVALS = 5         # fewer complete intervals: "too few intervals to tell"
@@ -14,7 +15,8 @@ MIN_INTERVALS = 5         # fewer complete intervals: "too few intervals to tell
 
 @lru_cache(maxsize=256)
 def poisson_cv_range(k: int) -> tuple[float, float] | None:
-    """2.5 and 97.5 percentiles of the sample CV (ddof=1) of k exponential waits (seeded simulation).
+    """2.5 and 97.5 percentiles of the sample CV (ddof=1) of k exponential waits (seeded simulation,
+    cached per k).
 
     Above CV_SIM_MAX_K intervals the delta-method normal approximation (variance 1/k) is used.
     """
@@ -22,12 +24,13 @@ def poisson_cv_range(k: int) -> tuple[float, float] | None:
         return None
     if k > CV_SIM_MAX_K:
         half = 1.96 / np.sqrt(k)
-        return 1 - half, 1 + half
+        return float(1 - half), float(1 + half)
     rng = np.random.default_rng([CV_SIM_SEED, k])
+    sims = int(np.clip(CV_SIM_BUDGET // k, 10_000, CV_SIMULATIONS))
     chunk = max(1, 2_000_000 // k)
     cvs = []
-    for start in range(0, CV_SIMULATIONS, chunk):
-        x = rng.exponential(1.0, size=(min(chunk, CV_SIMULATIONS - start), k))
+    for start in range(0, sims, chunk):
+        x = rng.exponential(1.0, size=(min(chunk, sims - start), k))
         cvs.append(x.std(axis=1, ddof=1) / x.mean(axis=1))
     lo, hi = np.percentile(np.concatenate(cvs), [2.5, 97.5])
     return float(lo), float(hi)
@@ -76,6 +79,10 @@ def pitfalls(s: dict, frame_s: float | None = None, zero_intervals: int = 0,
                    "counted twice, or two layers within one frame? The gamma fit needs positive waits.")
     if multi_frame_events:
         out.append(f"{multi_frame_events} event(s) last several frames; times are their first frame.")
+    T = s.get("duration_s")
+    if T and s["last_time_s"] - min(0.0, s["first_time_s"]) > T * (1 + 1e-9):
+        out.append(f"Events reach past the recording's duration in the sidecar ({T:g} s): check "
+                   "the sidecar; the count rate n/T is doubtful.")
     if s["intervals"] < 10:
         out.append(f"Only {s['intervals']} interval(s): every interval here is wide.")
     return out

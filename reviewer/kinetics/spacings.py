@@ -32,8 +32,8 @@ SPACINGS: dict[str, Spacing] = {
         Spacing("si111", 0.5431020511, (1, 1, 1), "CODATA 2018, Si lattice parameter at 22.5 C"),
         Spacing("ge111", 0.5658, (1, 1, 1), "Ioffe semiconductor database"),
         Spacing("gaas111", 0.565325, (1, 1, 1), "Ioffe semiconductor database"),
-        Spacing("au111", 0.40786, (1, 1, 1), "CRC Handbook of Chemistry and Physics (from memory)"),
-        Spacing("nio111", 0.4177, (1, 1, 1), "rock-salt NiO, room temperature (from memory)"),
+        Spacing("au111", 0.40786, (1, 1, 1), "CRC Handbook of Chemistry and Physics, from memory"),
+        Spacing("nio111", 0.4177, (1, 1, 1), "rock-salt NiO at room temperature, from memory"),
     )
 }
 

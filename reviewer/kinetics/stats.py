@@ -11,6 +11,7 @@ import warnings
 import numpy as np
 from scipy import optimize, special, stats
 
+BCA_MAX_N = 2_000
 CHI2_95_1DF = float(stats.chi2.ppf(0.95, 1))  # 3.841: profile-likelihood 95 % cut
 
 
@@ -32,16 +33,20 @@ def garwood_ci95(n: int) -> tuple[float, float]:
 
 
 def cv_bootstrap_ci95(x: np.ndarray, seed: int, n_resamples: int) -> tuple[float, float, str]:
-    """BCa bootstrap 95 % interval of the CV (percentile when BCa is undefined); and the method."""
-    method = "BCa"
+    """BCa bootstrap 95 % interval of the CV; and the method used.
+
+    Percentile instead when BCa is undefined, or above BCA_MAX_N values (its jackknife costs n^2).
+    """
+    method = "BCa" if x.size <= BCA_MAX_N else "percentile"
+    batch = max(1, 4_000_000 // max(1, x.size))  # bounds memory: resamples are built batch by batch
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        res = stats.bootstrap((x,), cv_of, n_resamples=n_resamples, vectorized=True,
-                              method="BCa", rng=np.random.default_rng(seed))
+        res = stats.bootstrap((x,), cv_of, n_resamples=n_resamples, vectorized=True, batch=batch,
+                              method=method, rng=np.random.default_rng(seed))
         lo, hi = res.confidence_interval
-        if not (np.isfinite(lo) and np.isfinite(hi)):
+        if method == "BCa" and not (np.isfinite(lo) and np.isfinite(hi)):
             method = "percentile"
-            res = stats.bootstrap((x,), cv_of, n_resamples=n_resamples, vectorized=True,
+            res = stats.bootstrap((x,), cv_of, n_resamples=n_resamples, vectorized=True, batch=batch,
                                   method="percentile", rng=np.random.default_rng(seed))
             lo, hi = res.confidence_interval
     return float(lo), float(hi), method

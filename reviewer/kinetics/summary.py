@@ -10,6 +10,9 @@ from reviewer.kinetics import reading, stats
 
 BOOT_RESAMPLES = 9_999  # bootstrap resamples for the CV interval
 GOF_SAMPLES = 9_999     # parametric-bootstrap samples for the exponential goodness of fit
+BOOT_BUDGET = 50_000_000  # resamples x intervals per CV interval (bounds the time on long tables)
+GOF_BUDGET = 4_000_000  # samples x intervals held in memory by scipy's goodness_of_fit at once
+MIN_CV = 1e-3           # below this the waits are taken as all equal: no gamma fit, no GOF
 
 
 def _num(v: float | None) -> float | None:
@@ -19,6 +22,21 @@ def _num(v: float | None) -> float | None:
 def _pair(lo: float, hi: float, factor: float = 1.0) -> list[float] | None:
     lo, hi = _num(lo * factor), _num(hi * factor)
     return None if lo is None or hi is None else [lo, hi]
+
+
+def _fit_gamma(out: dict, x: np.ndarray) -> None:
+    try:
+        with np.errstate(all="ignore"):
+            shape, scale = stats.fit_gamma(x)
+            out["gamma_vs_exponential_p"] = _num(stats.gamma_vs_exponential_p(x, shape, scale))
+    except (ArithmeticError, ValueError, RuntimeError):
+        return
+    out["gamma_shape"], out["gamma_scale_s"] = _num(shape), _num(scale)
+    try:
+        with np.errstate(all="ignore"):
+            out["gamma_shape_ci95"] = _pair(*stats.gamma_shape_ci95(x, shape))
+    except (ArithmeticError, ValueError, RuntimeError):
+        out["gamma_shape_ci95"] = None
 
 
 def summarise(times_s, duration_s: float | None = None, layer_nm: float | None = None, *,
@@ -39,6 +57,8 @@ def summarise(times_s, duration_s: float | None = None, layer_nm: float | None =
     if (x < 0).any():
         raise ValueError("event times must be in increasing order")
     n, k = int(t.size), int(x.size)
+    n_gof = int(min(n_gof, max(199, GOF_BUDGET // k)))    # long tables: fewer samples (stated)
+    n_boot = int(min(n_boot, max(1999, BOOT_BUDGET // k)))
     span = float(t[-1] - t[0])
     if span <= 0:
         raise ValueError(f"all {n} events at the same time: the span is zero")
@@ -77,15 +97,10 @@ def summarise(times_s, duration_s: float | None = None, layer_nm: float | None =
         band = reading.poisson_cv_range(k)
         out["poisson_cv_range95"] = list(band) if band else None
     zeros = int(np.sum(x == 0))
-    if k >= 2 and zeros == 0 and sd:
-        shape, scale = stats.fit_gamma(x)
-        out["gamma_shape"], out["gamma_scale_s"] = _num(shape), _num(scale)
-        try:
-            out["gamma_shape_ci95"] = _pair(*stats.gamma_shape_ci95(x, shape))
-        except (ArithmeticError, ValueError):
-            out["gamma_shape_ci95"] = None
-        out["gamma_vs_exponential_p"] = _num(stats.gamma_vs_exponential_p(x, shape, scale))
-    if k >= 3 and sd:
+    spread = cv is not None and cv > MIN_CV  # waits that all agree leave nothing to fit
+    if k >= 2 and zeros == 0 and spread:
+        _fit_gamma(out, x)
+    if k >= 3 and spread:
         out["gof_p_exponential"] = _num(stats.gof_exponential_p(x, seed, n_gof))
     if out["layer_nm"] is not None:
         out["velocity_nm_per_s"] = out["rate_per_s"] * out["layer_nm"]

@@ -1,0 +1,148 @@
+"""`reviewer kinetics EVENTS.csv`: waiting times, rates and growth velocity from an exported table."""
+
+from __future__ import annotations
+
+import argparse
+import json
+
+import numpy as np
+
+from reviewer.commands._common import positive_float
+from reviewer.errors import BadInput
+
+STATUS_CHOICES = ("accepted", "rejected", "candidate")
+
+
+def _statuses(text: str) -> tuple[str, ...]:
+    items = tuple(s.strip() for s in text.split(",") if s.strip())
+    bad = [s for s in items if s not in STATUS_CHOICES]
+    if not items or bad:
+        raise argparse.ArgumentTypeError(
+            f"status must be one or more of {', '.join(STATUS_CHOICES)} (comma-separated)")
+    return items
+
+
+def _seed(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not a whole number: {text!r}") from None
+    if value < 0:
+        raise argparse.ArgumentTypeError("seed must be >= 0")
+    return value
+
+
+def register(subparsers) -> None:
+    from reviewer.kinetics.groups import DEFAULT_RADIUS_PX
+    from reviewer.kinetics.spacings import SPACINGS
+
+    p = subparsers.add_parser(
+        "kinetics", help="waiting-time statistics, rates and growth velocity from an event table",
+        description="Read an exported event table (CSV, with its .json sidecar when present) and "
+                    "report, per group: intervals between events, their CV, the event rate with "
+                    "exact intervals, exponential and gamma fits, and a plain reading.",
+        epilog="Named layer heights: " + "; ".join(sp.describe() for sp in SPACINGS.values()),
+        formatter_class=argparse.RawDescriptionHelpFormatter)
+    p.add_argument("events", metavar="EVENTS.csv", help="event table written by `reviewer export`")
+    p.add_argument("--label", default=None, help="only events with this label")
+    p.add_argument("--status", type=_statuses, default=("accepted",), metavar="S[,S]",
+                   help="statuses to use (default: accepted)")
+    p.add_argument("--by", choices=("label", "region"), default=None,
+                   help="separate statistics per label, or per place in the field")
+    p.add_argument("--radius", type=positive_float, default=DEFAULT_RADIUS_PX, metavar="PX",
+                   help=f"--by region: events closer than this (pixels, chained) share a region "
+                        f"(default {DEFAULT_RADIUS_PX:g})")
+    p.add_argument("--roi", metavar="FILE", default=None,
+                   help="named rectangles (CSV name,x0,y0,x1,y1 or JSON {\"regions\": [...]}); "
+                        "implies --by region and replaces the clustering")
+    layer = p.add_mutually_exclusive_group()
+    layer.add_argument("--layer-nm", type=positive_float, default=None, metavar="H",
+                       help="layer height in nm: growth velocity = rate x H")
+    layer.add_argument("--layer", choices=sorted(SPACINGS), default=None, metavar="NAME",
+                       help=f"layer height by name: {', '.join(SPACINGS)} (sources below)")
+    p.add_argument("--json", action="store_true", help="print one JSON object instead of the table")
+    p.add_argument("--plot", metavar="OUT.png", default=None,
+                   help="write interval histogram and cumulative count to a PNG")
+    p.add_argument("--seed", type=_seed, default=0, help="random seed of the bootstraps (default 0)")
+    p.set_defaults(func=run)
+
+
+def _layer(args) -> tuple[float | None, str | None]:
+    if args.layer:
+        from reviewer.kinetics.spacings import layer_height
+
+        spacing = layer_height(args.layer)
+        return spacing.d_nm, spacing.describe()
+    if args.layer_nm:
+        return args.layer_nm, f"{args.layer_nm:g} nm (given with --layer-nm)"
+    return None, None
+
+
+def _groups(args, sel):
+    from reviewer.kinetics import groups
+
+    if args.roi:
+        return groups.by_roi(sel, groups.read_roi(args.roi)), "roi"
+    if args.by == "region":
+        return groups.by_region(sel, args.radius), "region"
+    if args.by == "label":
+        return groups.by_label(sel), "label"
+    return None, None
+
+
+def run(args: argparse.Namespace) -> int:
+    from reviewer.kinetics import read_events, summarise
+    from reviewer.kinetics.read import select_events
+    from reviewer.kinetics.report import render
+
+    df = read_events(args.events)
+    sel = select_events(df, args.label, args.status)
+    info = df.attrs.get("movie", {})
+    fps = info.get("fps")
+    layer_nm, layer_source = _layer(args)
+    what = "/".join(args.status) + (f" {args.label!r}" if args.label is not None else "")
+
+    def one(part) -> dict:
+        multi = int(np.sum(part["frame_end"].to_numpy(float) > part["frame"].to_numpy(float)))
+        return summarise(part["time_s"].to_numpy(float), info.get("duration_s"), layer_nm,
+                         frame_s=1.0 / fps if fps else None, seed=args.seed,
+                         multi_frame_events=multi)
+
+    if len(sel) < 2:
+        raise BadInput(f"{args.events}: only {len(sel)} {what} event: two events are the "
+                       "minimum for an interval")
+    try:
+        result = one(sel)
+    except ValueError as exc:
+        raise BadInput(f"{args.events}: {exc}") from None
+    parts, by = _groups(args, sel)
+    result = {"source": str(args.events), "statuses": list(args.status), "label": args.label,
+              "by": by, "radius_px": args.radius if by == "region" else None,
+              "layer_source": layer_source, "movie": info, **result, "groups": None}
+    if parts is not None:
+        result["groups"] = []
+        for name, part in parts:
+            try:
+                g = one(part)
+            except ValueError as exc:
+                g = {"events": len(part), "error": str(exc)}
+            result["groups"].append({"group": name, **g})
+        result["pooled_note"] = ("The top-level figures of --json pool all selected events; "
+                                 "read the groups.")
+    if args.plot:
+        from reviewer.kinetics.plot import plot_groups
+
+        rows = ([(g["group"], p["time_s"].to_numpy(float), g)
+                 for (_, p), g in zip(parts, result["groups"], strict=True)]
+                if parts is not None else [(what, sel["time_s"].to_numpy(float), result)])
+        try:
+            plot_groups(args.plot, rows)
+        except (OSError, ValueError) as exc:
+            raise BadInput(f"{args.plot}: cannot write the plot ({exc})") from None
+    if args.json:
+        print(json.dumps(result, indent=2, allow_nan=False, ensure_ascii=False))
+    else:
+        result["title"] = (f"{args.events}: {len(sel)} {what} events"
+                           + (f", grouped by {by}" if by else ""))
+        print(render(result), end="")
+    return 0

@@ -1,0 +1,131 @@
+"""Split the selected events into groups: by label, by place (distance clustering), or by ROI file.
+
+ROI file (our format): named rectangles in pixel coordinates of the movie, corners included,
+  CSV   with a header row   name,x0,y0,x1,y1     (one rectangle a row), or
+  JSON  {"regions": [{"name": "front A", "x0": 0, "y0": 0, "x1": 40, "y1": 96}, ...]}
+        (a bare list of such objects is accepted too).
+Rectangles may overlap: an event inside two rectangles counts in both. Events inside none form the
+group "outside ROIs".
+"""
+
+from __future__ import annotations
+
+import csv
+import json
+import os
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+from scipy.cluster.hierarchy import fcluster, linkage
+
+from reviewer.errors import BadInput
+
+DEFAULT_RADIUS_PX = 20.0
+NO_POSITION = "no position"
+OUTSIDE = "outside ROIs"
+
+
+@dataclass(frozen=True)
+class Roi:
+    name: str
+    x0: float
+    y0: float
+    x1: float
+    y1: float
+
+    def contains(self, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+        return (x >= self.x0) & (x <= self.x1) & (y >= self.y0) & (y <= self.y1)
+
+
+def by_label(df: pd.DataFrame) -> list[tuple[str, pd.DataFrame]]:
+    """One group per label (empty label -> '(no label)'), in order of first appearance."""
+    names = df["label"].replace("", "(no label)")
+    return [(str(name), df[names == name]) for name in dict.fromkeys(names)]
+
+
+def _unplaced(df: pd.DataFrame) -> np.ndarray:
+    return ~(np.isfinite(df["x"].to_numpy(float)) & np.isfinite(df["y"].to_numpy(float)))
+
+
+def by_region(df: pd.DataFrame, radius: float = DEFAULT_RADIUS_PX) -> list[tuple[str, pd.DataFrame]]:
+    """Single-linkage clusters of (x, y): events closer than `radius` pixels (in a chain) share a group.
+
+    Groups are named by their mean position, largest group first.
+    """
+    unplaced = _unplaced(df)
+    placed = df[~unplaced]
+    groups: list[tuple[str, pd.DataFrame]] = []
+    if len(placed) == 1:
+        labels = np.ones(1, int)
+    elif len(placed) > 1:
+        xy = placed[["x", "y"]].to_numpy(float)
+        labels = fcluster(linkage(xy, method="single"), t=radius, criterion="distance")
+    else:
+        labels = np.zeros(0, int)
+    ids = sorted(set(labels.tolist()), key=lambda c: (-np.sum(labels == c), c))
+    for i, c in enumerate(ids, 1):
+        part = placed[labels == c]
+        groups.append((f"region {i} (x {part['x'].mean():.0f}, y {part['y'].mean():.0f})", part))
+    if unplaced.any():
+        groups.append((NO_POSITION, df[unplaced]))
+    return groups
+
+
+def _roi(path: Path, item: dict, where: str) -> Roi:
+    try:
+        roi = Roi(str(item["name"]).strip(), *(float(item[k]) for k in ("x0", "y0", "x1", "y1")))
+    except (KeyError, TypeError, ValueError):
+        raise BadInput(f"{path}: {where}: a region needs name, x0, y0, x1, y1 (numbers)") from None
+    if not roi.name or not (roi.x0 <= roi.x1 and roi.y0 <= roi.y1):
+        raise BadInput(f"{path}: {where}: needs a name and x0 <= x1, y0 <= y1")
+    return roi
+
+
+def read_roi(path: str | os.PathLike) -> list[Roi]:
+    """Named rectangles from a CSV or JSON ROI file (format in the module docstring)."""
+    path = Path(path)
+    if not path.is_file():
+        raise BadInput(f"{path}: no such ROI file")
+    try:
+        text = path.read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as exc:
+        raise BadInput(f"{path}: cannot read ROI file ({exc})") from None
+    if path.suffix.lower() == ".json":
+        try:
+            data = json.loads(text)
+        except json.JSONDecodeError as exc:
+            raise BadInput(f"{path}: not valid JSON ({exc})") from None
+        items = data.get("regions") if isinstance(data, dict) else data
+        if not isinstance(items, list):
+            raise BadInput(f"{path}: expected {{\"regions\": [...]}} or a list of regions")
+        rois = [_roi(path, it if isinstance(it, dict) else {}, f"region {i}")
+                for i, it in enumerate(items, 1)]
+    else:
+        rows = list(csv.DictReader(text.splitlines()))
+        rois = [_roi(path, row, f"row {i}") for i, row in enumerate(rows, 1)]
+    if not rois:
+        raise BadInput(f"{path}: no regions in the ROI file")
+    names = [r.name for r in rois]
+    if len(set(names)) != len(names):
+        raise BadInput(f"{path}: region names must be unique")
+    return rois
+
+
+def by_roi(df: pd.DataFrame, rois: list[Roi]) -> list[tuple[str, pd.DataFrame]]:
+    """One group per rectangle (events inside it), then 'outside ROIs' and 'no position' if any."""
+    x, y = df["x"].to_numpy(float), df["y"].to_numpy(float)
+    unplaced = _unplaced(df)
+    inside_any = np.zeros(len(df), bool)
+    groups = []
+    for roi in rois:
+        hit = roi.contains(x, y)
+        inside_any |= hit
+        groups.append((roi.name, df[hit]))
+    rest = ~inside_any & ~unplaced
+    if rest.any():
+        groups.append((OUTSIDE, df[rest]))
+    if unplaced.any():
+        groups.append((NO_POSITION, df[unplaced]))
+    return groups

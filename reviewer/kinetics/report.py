@@ -1,0 +1,104 @@
+"""Terminal text for kinetics summaries: an aligned table, then the reading and pitfalls per group."""
+
+from __future__ import annotations
+
+import math
+
+DASH = "—"
+
+
+def _g(v: float | None, unit: str = "", digits: int = 4) -> str:
+    if v is None or (isinstance(v, float) and not math.isfinite(v)):
+        return DASH
+    return f"{v:.{digits}g}{unit}"
+
+
+def _ci(s: dict, key: str, ci_key: str, unit: str = "") -> str:
+    v, ci = s.get(key), s.get(ci_key)
+    if v is None:
+        return DASH
+    text = _g(v, unit)
+    return text + (f"  [{_g(ci[0])}, {_g(ci[1])}]" if ci else "")
+
+
+def _p(v: float | None) -> str:
+    if v is None:
+        return DASH
+    return f"{v:.2g}" if v >= 1e-3 else "< 0.001"
+
+
+ROWS = (
+    ("events n", lambda s: str(s["events"])),
+    ("complete intervals k = n - 1", lambda s: str(s.get("intervals", DASH))),
+    ("span t_last - t_first", lambda s: _g(s.get("span_s"), " s")),
+    ("interval mean", lambda s: _g(s.get("interval_mean_s"), " s")),
+    ("interval median", lambda s: _g(s.get("interval_median_s"), " s")),
+    ("interval SD (ddof 1)", lambda s: _g(s.get("interval_sd_s"), " s")),
+    ("interval CV  [95 %, bootstrap]", lambda s: _ci(s, "interval_cv", "interval_cv_ci95")),
+    ("CV range of random waits (95 %)",
+     lambda s: "{:.2f}–{:.2f}".format(*s["poisson_cv_range95"]) if s.get("poisson_cv_range95")
+     else DASH),
+    ("rate k/span  [95 %, chi-square exact]",
+     lambda s: _ci(s, "rate_per_s", "rate_ci95_per_s", " /s")),
+    ("count rate n/T  [95 %, Garwood exact]",
+     lambda s: _ci(s, "count_rate_per_s", "count_rate_ci95_per_s", " /s")
+     if s.get("count_rate_per_s") is not None else "unknown (no movie duration)"),
+    ("exponential fit: mean wait", lambda s: _g(s.get("exponential_scale_s"), " s")),
+    ("gamma fit: shape  [95 %, profile lik.]",
+     lambda s: _ci(s, "gamma_shape", "gamma_shape_ci95")),
+    ("gamma fit: scale", lambda s: _g(s.get("gamma_scale_s"), " s")),
+    ("gamma vs exponential: LR p", lambda s: _p(s.get("gamma_vs_exponential_p"))),
+    ("exponential GOF p (KS, bootstrap)", lambda s: _p(s.get("gof_p_exponential"))),
+    ("velocity = rate x layer height  [95 %]",
+     lambda s: _ci(s, "velocity_nm_per_s", "velocity_ci95_nm_per_s", " nm/s")
+     if s.get("velocity_nm_per_s") is not None else "no layer height given"),
+)
+
+
+def _cell(fn, s: dict) -> str:
+    if s.get("error"):
+        return str(s["events"]) if fn is ROWS[0][1] else DASH
+    try:
+        return fn(s)
+    except (KeyError, TypeError):
+        return DASH
+
+
+def table(groups: list[dict]) -> str:
+    """Figures as rows, one column per group (each dict a summarise() result plus 'group')."""
+    head = ["", *[g.get("group", "events") for g in groups]]
+    body = [[label, *[_cell(fn, g) for g in groups]] for label, fn in ROWS]
+    widths = [max(len(r[i]) for r in [head, *body]) for i in range(len(head))]
+    lines = ["  ".join(c.ljust(w) for c, w in zip(head, widths, strict=True)).rstrip(),
+             "  ".join("-" * w for w in widths)]
+    lines += ["  ".join(c.ljust(w) for c, w in zip(r, widths, strict=True)).rstrip() for r in body]
+    return "\n".join(lines)
+
+
+def render(result: dict) -> str:
+    """Full text output: source line, table, methods, then reading and pitfalls per group."""
+    groups = result.get("groups") or [result]
+    out = [result.get("title", "")] if result.get("title") else []
+    out += [table(groups), ""]
+    first = next((g for g in groups if not g.get("error")), None)
+    if first:
+        out.append(f"CV interval: {first['interval_cv_ci_method'] or DASH}. "
+                   f"Rate: {first['rate_method']}. Count rate: {first['count_rate_method']}"
+                   + (f" (T = {_g(first['duration_s'])} s)." if first.get("duration_s") else "."))
+        out.append(f"Gamma shape interval: {first['gamma_shape_ci_method']}. "
+                   f"GOF: {first['gof_method']}.")
+    if result.get("layer_source"):
+        out.append(f"Layer height: {result['layer_source']}.")
+    for g in groups:
+        out.append("")
+        name = g.get("group")
+        if name:
+            out.append(f"[{name}]")
+        if g.get("error"):
+            out.append(g["error"])
+            continue
+        out.append(g["reading"])
+        out += [f"  ! {p}" for p in g["pitfalls"]]
+    if result.get("groups") and result.get("pooled_note"):
+        out += ["", result["pooled_note"]]
+    return "\n".join(out).rstrip() + "\n"
