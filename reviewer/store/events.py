@@ -11,6 +11,9 @@ import math
 from dataclasses import dataclass, fields
 from datetime import UTC, datetime
 
+import numpy as np
+import pandas as pd
+
 from reviewer.store.table import COLUMNS
 
 
@@ -106,3 +109,46 @@ def changed(event: Event, **new) -> dict | None:
     if not diff:
         return None
     return {"id": event.event_id, "before": event.values(diff), "after": diff}
+
+
+def _column(df, name: str, n: int, kind: str) -> list:
+    if name not in df.columns:
+        return [None] * n
+    col = df[name]
+    if kind == "text":
+        return [None if (v is None or v == "" or pd.isna(v)) else str(v) for v in col.tolist()]
+    values = np.array(pd.to_numeric(col, errors="coerce"), dtype=np.float64)
+    bad = ~np.isfinite(values)
+    values[bad] = 0.0
+    out = (values.astype(np.int64) if kind == "int" else values).tolist()
+    for i in np.flatnonzero(bad).tolist():
+        out[i] = None
+    return out
+
+
+def candidate_rows(df, time_of_frames) -> list[list]:
+    """Rows (FIELDS order) for the detector's candidates DataFrame, ids by candidate order."""
+    n = len(df)
+    if "frame" not in df.columns:
+        raise ValueError("candidates need a 'frame' column")
+    frames = np.asarray(df["frame"], dtype=np.int64)
+    times = time_of_frames(frames) if n else None
+    time_s = np.asarray(times, dtype=np.float64).tolist() if times is not None else \
+        _column(df, "time_s", n, "float")
+    kind = _column(df, "kind", n, "text")
+    cols = {
+        "event_id": [detector_id(i) for i in range(n)],
+        "frame": frames.tolist(),
+        "time_s": time_s,
+        "frame_end": _column(df, "frame_end", n, "int"),
+        "kind": [k or "step" for k in kind],
+        "score": _column(df, "score", n, "float"),
+        "x": _column(df, "x", n, "float"),
+        "y": _column(df, "y", n, "float"),
+        "status": ["candidate"] * n,
+        "label": [None] * n,
+        "note": [None] * n,
+        "source": ["detector"] * n,
+        "reviewed_at": [None] * n,
+    }
+    return [list(r) for r in zip(*(cols[f] for f in FIELDS), strict=True)]

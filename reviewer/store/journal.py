@@ -38,10 +38,12 @@ class StoreWriteError(OSError):
     """The session could not be saved; the action was not applied."""
 
 
-def _explain(path: Path, exc: OSError) -> StoreWriteError:
+def _explain(path: Path, exc: OSError, action: bool = False) -> StoreWriteError:
     why = "the disk is full" if exc.errno == errno.ENOSPC else (exc.strerror or str(exc))
-    return StoreWriteError(exc.errno, f"{path}: cannot save the review ({why}); the last action was "
-                                      "not applied — free space or fix the folder, then repeat it")
+    text = f"{path}: cannot write ({why})"
+    if action:
+        text += "; the last action was not applied: free space or fix the folder, then repeat it"
+    return StoreWriteError(exc.errno, text)
 
 
 def fsync_dir(folder: Path) -> None:
@@ -91,8 +93,7 @@ def read_journal(path: Path) -> tuple[list[dict], list[str], int | None]:
     except FileNotFoundError:
         return [], [], None
     records: list[dict] = []
-    notices: list[str] = []
-    bad: list[int] = []
+    bad: list[tuple[int, int]] = []  # (line number, start offset) of damaged lines
     good_end = 0
     start = 0
     line_no = 0
@@ -109,16 +110,15 @@ def read_journal(path: Path) -> tuple[list[dict], list[str], int | None]:
                 records.append(rec)
                 good_end = end
             except ValueError:
-                bad.append(line_no)
+                bad.append((line_no, start))
         start = end
-    cut = None
-    if good_end < len(data) and data[good_end:].strip(b"\n\r\t \x00"):
-        cut = good_end
-        last = bad.pop()
-        notices.append(f"{path}: line {last} was incomplete (written during a crash) and was ignored")
-    elif good_end < len(data):
-        cut = good_end
-    notices += [f"{path}: line {n} is damaged and was skipped" for n in bad]
+    notices: list[str] = []
+    cut = good_end if good_end < len(data) else None
+    tail = [n for n, s in bad if s >= good_end]
+    if tail:
+        notices.append(f"{path}: line {tail[0]} was incomplete (written during a crash) and was "
+                       "ignored")
+    notices += [f"{path}: line {n} is damaged and was skipped" for n, s in bad if s < good_end]
     return records, notices, cut
 
 
@@ -153,7 +153,7 @@ class Journal:
             with contextlib.suppress(OSError):
                 os.ftruncate(self.fd, self.size)
                 self._repair = False
-            raise _explain(self.path, exc) from exc
+            raise _explain(self.path, exc, action=True) from exc
         self.size += len(line)
 
     def truncate(self) -> None:

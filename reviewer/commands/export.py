@@ -1,0 +1,98 @@
+"""`reviewer export MOVIE`: write the reviewed event table (CSV) and its provenance (JSON)."""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+from pathlib import Path
+
+from reviewer.commands._common import add_movie_arguments, open_movie_from_args
+from reviewer.errors import BadInput
+from reviewer.store.export import export_events, parse_statuses
+from reviewer.store.table import STATUSES
+
+
+def register(subparsers) -> None:
+    p = subparsers.add_parser(
+        "export", help="write the event table (CSV) and its provenance (JSON)",
+        description="Write the events of a movie's review session as CSV (RFC 4180) with a JSON "
+                    "provenance file beside it. Works on a running or crashed session too.")
+    add_movie_arguments(p)
+    p.add_argument("-o", "--output", metavar="CSV", default=None,
+                   help="CSV file to write (default: <movie name>.events.csv beside the movie, or "
+                        "in the session folder when the movie's folder is read-only)")
+    p.add_argument("--status", default=",".join(STATUSES), metavar="LIST",
+                   help="comma list of statuses to include (default: %(default)s)")
+    p.add_argument("--session", metavar="DIR", default=None,
+                   help="session folder (default: <movie>.review/ beside the movie, else the user "
+                        "data folder)")
+    p.set_defaults(func=run)
+
+
+def _stem(movie_path: Path) -> str:
+    name = movie_path.name
+    for ext in (".ome.tiff", ".ome.tif"):
+        if name.lower().endswith(ext):
+            return name[: -len(ext)]
+    return movie_path.stem if movie_path.is_file() else name
+
+
+def _writable(folder: Path) -> bool:
+    return folder.is_dir() and os.access(folder, os.W_OK | os.X_OK)
+
+
+def default_output(movie_path: Path, session_folder: Path) -> Path:
+    movie_path = Path(movie_path).resolve()
+    name = f"{_stem(movie_path)}.events.csv"
+    beside = movie_path.parent
+    return beside / name if _writable(beside) else session_folder / name
+
+
+def _seed_from_scan(session, movie) -> None:
+    """A movie scanned but never reviewed: export the detector's candidates (in memory only)."""
+    try:
+        from reviewer.detect import load_scan
+        from reviewer.paths import cache_dir
+    except ImportError:
+        return
+    result = load_scan(cache_dir(movie.fingerprint, create=False) / "scan")
+    if result is not None:
+        session.meta.setdefault("detector", result.settings)
+        session.seed(result.candidates)
+
+
+def run(args: argparse.Namespace) -> int:
+    from reviewer.store.session import Session
+
+    statuses = parse_statuses(args.status)
+    movie = open_movie_from_args(args)
+    try:
+        timing = movie.timing
+        meta = {"frames": movie.n_frames, "fps": timing.fps, "times_s": timing.times_s,
+                "height": movie.height, "width": movie.width}
+        session = Session.open(movie.path, movie.fingerprint, override=args.session, meta=meta,
+                               readonly=True)
+        for note in session.notices:
+            print(f"reviewer: {note}", file=sys.stderr)
+        if not session.seeded and not session.events:
+            _seed_from_scan(session, movie)
+        out = Path(args.output) if args.output else default_output(movie.path, session.folder)
+        try:
+            csv_path, json_path = export_events(session, out, statuses, movie=movie)
+        except OSError as exc:
+            if args.output:
+                raise BadInput(f"{out}: cannot write ({exc.strerror or exc})") from exc
+            out = session.folder / out.name  # the movie's folder refused: use the session folder
+            try:
+                csv_path, json_path = export_events(session, out, statuses, movie=movie)
+            except OSError as exc2:
+                raise BadInput(f"{out}: cannot write ({exc2.strerror or exc2})") from exc2
+        n = sum(1 for e in session.events if e.status in statuses)
+        print(f"wrote {n} events ({', '.join(statuses)}) to {csv_path}")
+        print(f"provenance in {json_path}")
+        if not session.events:
+            print("note: this movie has no reviewed or detected events yet", file=sys.stderr)
+    finally:
+        movie.close()
+    return 0
