@@ -1,0 +1,1 @@
+"""Terminal UI (Textual): the only part of reviewer that imports textual."""

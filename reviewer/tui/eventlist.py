@@ -1,0 +1,200 @@
+"""EventList: a virtualised list of events (Line API) that stays quick at 100,000 rows.
+
+Only the visible rows are ever formatted. Line 0 is a fixed header; line y >= 1 shows row
+``scroll_y + y - 1``. Rows are any objects with the event-table attributes (event_id, frame, time_s,
+kind, score, status, label).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+
+from rich.segment import Segment
+from rich.style import Style
+from textual import events
+from textual.binding import Binding
+from textual.geometry import Size
+from textual.message import Message
+from textual.scroll_view import ScrollView
+from textual.strip import Strip
+
+# (title, width) of the fixed-width columns; the label takes the rest
+COLUMNS = (("frame", 8), ("time s", 11), ("kind", 10), ("score", 8), ("status", 10))
+HEADER_STYLE = Style.parse("bold #c8d3de on #1b2430")
+ROW_STYLE = Style.parse("#c8d3de")
+CURSOR_STYLE = Style.parse("#ffffff on #2f5580")
+STATUS_STYLES = {
+    "candidate": Style.parse("#f0b43c"),
+    "accepted": Style.parse("#52c987"),
+    "rejected": Style.parse("#9a6a6a"),
+}
+
+
+def _num(value: object, fmt: str) -> str:
+    if value is None:
+        return ""
+    try:
+        v = float(value)  # type: ignore[arg-type]
+    except (TypeError, ValueError):
+        return str(value)
+    return "" if math.isnan(v) else format(v, fmt)
+
+
+def row_cells(event: object) -> list[str]:
+    """The displayed text of one event: frame, time, kind, score, status, label."""
+    frame = getattr(event, "frame", None)
+    return [
+        "" if frame is None else str(int(frame)),
+        _num(getattr(event, "time_s", None), ".4f"),
+        str(getattr(event, "kind", "") or ""),
+        _num(getattr(event, "score", None), ".3g"),
+        str(getattr(event, "status", "") or ""),
+        str(getattr(event, "label", "") or ""),
+    ]
+
+
+class EventList(ScrollView, can_focus=True):
+    """Events one per line with a cursor; Enter or a click posts ``EventList.Chosen``."""
+
+    DEFAULT_CSS = """
+    EventList { overflow-x: hidden; overflow-y: auto; height: 1fr; }
+    """
+    BINDINGS = [
+        Binding("up", "cursor(-1)", "Up", show=False, id="eventlist.up"),
+        Binding("down", "cursor(1)", "Down", show=False, id="eventlist.down"),
+        Binding("pageup", "page(-1)", "Page up", show=False, id="eventlist.page_up"),
+        Binding("pagedown", "page(1)", "Page down", show=False, id="eventlist.page_down"),
+        Binding("home", "jump(0)", "First", show=False, id="eventlist.first"),
+        Binding("end", "jump(-1)", "Last", show=False, id="eventlist.last"),
+        Binding("enter", "choose", "Go to event", show=False, id="eventlist.choose"),
+    ]
+
+    class Chosen(Message):
+        """The user chose the event ``event_id`` (Enter or click)."""
+
+        def __init__(self, event_id: int) -> None:
+            super().__init__()
+            self.event_id = event_id
+
+    def __init__(self, *, name: str | None = None, id: str | None = None,
+                 classes: str | None = None) -> None:
+        super().__init__(name=name, id=id, classes=classes)
+        self._rows: list[object] = []
+        self._index: dict[int, int] | None = None
+        self._cursor = 0
+        self._cache: dict[int, list[str]] = {}
+
+    # ----- data --------------------------------------------------------------------------------
+    def set_rows(self, events: Sequence[object]) -> None:
+        """Replace all rows (kept as given; formatted only when shown)."""
+        self._rows = list(events)
+        self._index = None
+        self._cache.clear()
+        self._cursor = min(self._cursor, max(len(self._rows) - 1, 0))
+        self.virtual_size = Size(self.size.width, len(self._rows) + 1)
+        self.refresh()
+
+    def update_event(self, event: object) -> bool:
+        """Redraw one changed event in place (same id); False when its id is not listed."""
+        row = self._id_index().get(int(event.event_id))  # type: ignore[attr-defined]
+        if row is None:
+            return False
+        self._rows[row] = event
+        self._cache.pop(row, None)
+        self.refresh()
+        return True
+
+    @property
+    def row_count(self) -> int:
+        return len(self._rows)
+
+    @property
+    def cursor_row(self) -> int:
+        return self._cursor
+
+    @property
+    def cursor_event_id(self) -> int | None:
+        return int(self._rows[self._cursor].event_id) if self._rows else None  # type: ignore
+
+    def select_event(self, event_id: int) -> bool:
+        """Move the cursor to the event and scroll it into view; False when not listed."""
+        row = self._id_index().get(int(event_id))
+        if row is None:
+            return False
+        self._move_to(row)
+        return True
+
+    def _id_index(self) -> dict[int, int]:
+        if self._index is None:
+            self._index = {int(e.event_id): i for i, e in enumerate(self._rows)}  # type: ignore
+        return self._index
+
+    # ----- cursor ------------------------------------------------------------------------------
+    def _page_rows(self) -> int:
+        return max(self.size.height - 2, 1)
+
+    def _move_to(self, row: int) -> None:
+        if not self._rows:
+            return
+        self._cursor = min(max(row, 0), len(self._rows) - 1)
+        top = round(self.scroll_y)
+        visible = self._page_rows() + 1
+        if self._cursor < top:
+            self.scroll_to(y=self._cursor, animate=False, immediate=True)
+        elif self._cursor >= top + visible:
+            self.scroll_to(y=self._cursor - visible + 1, animate=False, immediate=True)
+        self.refresh()
+
+    def action_cursor(self, delta: int) -> None:
+        self._move_to(self._cursor + delta)
+
+    def action_page(self, direction: int) -> None:
+        self._move_to(self._cursor + direction * self._page_rows())
+
+    def action_jump(self, row: int) -> None:
+        self._move_to(row if row >= 0 else len(self._rows) - 1)
+
+    def action_choose(self) -> None:
+        if self._rows:
+            self.post_message(self.Chosen(self.cursor_event_id))  # type: ignore[arg-type]
+
+    def on_click(self, event: events.Click) -> None:
+        if event.y >= 1:
+            row = round(self.scroll_y) + event.y - 1
+            if row < len(self._rows):
+                self._move_to(row)
+                self.action_choose()
+
+    # ----- drawing -----------------------------------------------------------------------------
+    def _fit(self, cells: list[str], width: int) -> str:
+        parts = [c[:w - 1].rjust(w - 1) + " " if i in (0, 1, 3) else c[:w - 1].ljust(w)
+                 for i, ((_, w), c) in enumerate(zip(COLUMNS, cells, strict=False))]
+        text = "".join(parts) + cells[5]
+        return text[:width].ljust(width)
+
+    def render_line(self, y: int) -> Strip:
+        width = self.scrollable_content_region.width
+        if y == 0:
+            return Strip([Segment(self._fit([t for t, _ in COLUMNS] + ["label"], width),
+                                  HEADER_STYLE)], width)
+        row = round(self.scroll_y) + y - 1
+        if row >= len(self._rows):
+            return Strip.blank(width, ROW_STYLE)
+        cells = self._cache.get(row)
+        if cells is None:
+            if len(self._cache) > 2000:
+                self._cache.clear()
+            cells = self._cache[row] = row_cells(self._rows[row])
+        text = self._fit(cells, width)
+        if row == self._cursor:
+            return Strip([Segment(text, CURSOR_STYLE)], width)
+        a = sum(w for _, w in COLUMNS[:4])
+        b = a + COLUMNS[4][1]
+        status = STATUS_STYLES.get(cells[4], ROW_STYLE)
+        segs = [Segment(text[:a], ROW_STYLE), Segment(text[a:b], status),
+                Segment(text[b:], ROW_STYLE)]
+        return Strip([s for s in segs if s.text], width)
+
+    def on_resize(self) -> None:
+        self.virtual_size = Size(self.size.width, len(self._rows) + 1)
