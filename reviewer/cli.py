@@ -21,7 +21,9 @@ def _command_modules() -> list[str]:
     return [n for n in ORDER if n in found] + sorted(found.difference(ORDER))
 
 
-def build_parser() -> argparse.ArgumentParser:
+def build_parser(only: str | None = None) -> argparse.ArgumentParser:
+    """The argument parser; with `only`, just that subcommand's module is imported (fast start-up:
+    `reviewer info` need not load pandas or scipy for the other commands)."""
     parser = argparse.ArgumentParser(
         prog="reviewer",
         description="Find, confirm and time-stamp growth events in long microscopy movies.",
@@ -29,15 +31,28 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"reviewer {__version__}")
     parser.add_argument("--debug", action="store_true", help="show a full traceback on errors")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
-    for name in _command_modules():
+    for name in [only] if only else _command_modules():
         importlib.import_module(f"reviewer.commands.{name}").register(sub)
     return parser
 
 
+def _requested(argv: list[str]) -> str | None:
+    """The subcommand named on the command line, if it is one we have."""
+    known = set(_command_modules())
+    for token in argv:
+        if not token.startswith("-"):
+            return token if token in known else None
+    return None
+
+
 def main(argv: list[str] | None = None) -> int:
     argv = list(sys.argv[1:] if argv is None else argv)
-    parser = build_parser()
+    debug = "--debug" in argv  # accepted anywhere on the line
+    if debug:
+        argv = [a for a in argv if a != "--debug"]
+    parser = build_parser(_requested(argv))
     args = parser.parse_args(argv)
+    args.debug = debug
     if not getattr(args, "func", None):
         parser.print_help()
         return 2

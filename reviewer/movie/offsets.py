@@ -1,0 +1,91 @@
+"""Frames stored plainly at known byte offsets of one file, read with positioned reads (os.preadv).
+
+Used by uncompressed TIFF (contiguous or page-per-frame), .npy and raw binary files. Nothing is read at
+open; a frame read reads that frame's bytes straight into the output array. No memory map: a file that
+shrinks while open gives a clear error instead of a crash (SIGBUS), and resident memory stays the size
+of what was asked for.
+"""
+
+from __future__ import annotations
+
+import os
+import threading
+from pathlib import Path
+
+import numpy as np
+
+from reviewer.errors import BadInput
+from reviewer.movie.base import Movie, Timing
+from reviewer.movie.pixels import to_frames
+
+
+class OffsetMovie(Movie):
+    """Frame i is `frame_shape` pixels of `file_dtype` starting at byte `offsets[i]`.
+
+    `frame_shape` is (h, w) or (h, w, samples) for colour (read as luminance).
+    """
+
+    def __init__(self, path: Path, offsets: np.ndarray, frame_shape: tuple[int, ...],
+                 file_dtype: np.dtype, out_dtype: np.dtype, *, layout: str, timing: Timing | None = None,
+                 fingerprint: str = "", notices: list[str] | None = None) -> None:
+        self.offsets = np.ascontiguousarray(offsets, dtype=np.int64)
+        self.frame_shape = tuple(int(s) for s in frame_shape)
+        self.file_dtype = np.dtype(file_dtype)
+        self.rgb = len(self.frame_shape) == 3
+        self.frame_bytes = int(np.prod(self.frame_shape)) * self.file_dtype.itemsize
+        self._fd: int | None = os.open(path, os.O_RDONLY)
+        self._lock = threading.Lock()  # only for the seek+read fallback
+        size = os.fstat(self._fd).st_size
+        if len(self.offsets) and (self.offsets.min() < 0
+                                  or self.offsets.max() + self.frame_bytes > size):
+            self.close()
+            raise ValueError("frame offsets outside the file")
+        super().__init__(path=Path(path), n_frames=len(self.offsets),
+                         shape=(self.frame_shape[0], self.frame_shape[1]), dtype=np.dtype(out_dtype),
+                         layout=layout, timing=timing or Timing(), fingerprint=fingerprint,
+                         notices=list(notices or []))
+
+    def _fill(self, buf: np.ndarray, offset: int) -> None:
+        """Read exactly buf.nbytes bytes at offset into buf."""
+        if self._fd is None:
+            raise ValueError("movie is closed")
+        view = memoryview(buf).cast("B")
+        done = 0
+        while done < len(view):
+            if hasattr(os, "preadv"):
+                got = os.preadv(self._fd, [view[done:]], offset + done)
+            else:  # pragma: no cover - non-POSIX fallback
+                with self._lock:
+                    os.lseek(self._fd, offset + done, os.SEEK_SET)
+                    got = os.readv(self._fd, [view[done:]])
+            if got <= 0:
+                raise BadInput(f"{self.path}: the file ended at byte {offset + done} while reading a "
+                               "frame (was it truncated after opening?)")
+            done += got
+
+    def _raw(self, start: int, stop: int) -> np.ndarray:
+        """Frames [start, stop) in the file's dtype: one read when they are evenly spaced and the gaps
+        are small, else one read a frame."""
+        offs = self.offsets[start:stop]
+        n, fb = stop - start, self.frame_bytes
+        step = int(offs[1] - offs[0]) if n > 1 else fb
+        if n > 1 and step >= fb and step <= 2 * fb and np.all(np.diff(offs) == step):
+            span = np.empty((n - 1) * step + fb, np.uint8)
+            self._fill(span, int(offs[0]))
+            strided = np.lib.stride_tricks.as_strided(span, (n, fb), (step, 1))
+            return np.ascontiguousarray(strided).view(self.file_dtype).reshape(n, *self.frame_shape)
+        out = np.empty((n, *self.frame_shape), self.file_dtype)
+        for k, o in enumerate(offs):
+            self._fill(out[k], int(o))
+        return out
+
+    def _read(self, start: int, stop: int) -> np.ndarray:
+        raw = self._raw(start, stop)
+        if not self.rgb and raw.dtype == self.dtype:
+            return raw  # already a fresh array in native order: no second copy
+        return to_frames(raw, self.dtype, self.rgb)
+
+    def close(self) -> None:
+        fd, self._fd = self._fd, None
+        if fd is not None:
+            os.close(fd)

@@ -1,0 +1,41 @@
+"""Pixel types: which dtypes frames come in, and colour frames turned into luminance."""
+
+from __future__ import annotations
+
+import numpy as np
+
+# Frames keep these dtypes as stored (native byte order).
+KEPT = (np.uint8, np.uint16, np.int16, np.uint32, np.float32)
+
+# ITU-R BT.601 luma weights (Rec. 601: Y' = 0.299 R' + 0.587 G' + 0.114 B').
+BT601 = np.array([0.299, 0.587, 0.114], dtype=np.float32)
+RGB_NOTICE = "colour frames read as float32 luminance (ITU-R BT.601 weights 0.299 R + 0.587 G + 0.114 B)"
+
+
+def output_dtype(dtype: np.dtype, what: str) -> tuple[np.dtype, str | None]:
+    """The dtype frames are handed out in, and a notice when it differs from the stored one.
+
+    Raises ValueError for types that are not pixel values (bool, complex, strings, records).
+    """
+    dtype = np.dtype(dtype)
+    native = dtype.newbyteorder("=")
+    if any(native == np.dtype(k) for k in KEPT):
+        return native, None
+    if dtype.kind in "iu" and dtype.itemsize <= 2:
+        out = np.dtype(np.int16) if dtype.kind == "i" else np.dtype(np.uint16)
+        return out, f"{what} holds {dtype.name} pixels: read as {out.name}"
+    if dtype.kind in "iuf":
+        return np.dtype(np.float32), f"{what} holds {dtype.name} pixels: read as float32"
+    raise ValueError(f"pixel type {dtype} is not supported")
+
+
+def luminance(rgb: np.ndarray) -> np.ndarray:
+    """(..., 3 or 4) colour samples -> float32 luminance (BT.601 weights; alpha ignored)."""
+    return np.tensordot(rgb[..., :3].astype(np.float32, copy=False), BT601, axes=([-1], [0]))
+
+
+def to_frames(block: np.ndarray, dtype: np.dtype, rgb: bool) -> np.ndarray:
+    """A read block (n, h, w[, s]) in the movie's output dtype (a fresh native-order array)."""
+    if rgb:
+        return luminance(block).astype(np.float32, copy=False)
+    return np.array(block, dtype=dtype, copy=True)

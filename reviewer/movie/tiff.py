@@ -1,0 +1,210 @@
+"""TIFF movies: ImageJ hyperstacks (also the single-IFD kind over 4 GB), contiguous stacks,
+page-per-frame files, BigTIFF, OME-TIFF and compressed pages.
+
+Plain (uncompressed) frames are read through a memory map at byte offsets; compressed frames are decoded
+one page at a time by tifffile from the page's own IFD. The list of IFDs is never built by tifffile
+(that walks every page); contiguous stacks need no index at all, other files get a cached offset index
+(see `pageindex`).
+"""
+
+from __future__ import annotations
+
+import json
+import logging
+import os
+import threading
+from contextlib import contextmanager
+from pathlib import Path
+
+import numpy as np
+import tifffile
+
+from reviewer.errors import BadInput
+from reviewer.movie.base import Movie, Timing
+from reviewer.movie.offsets import OffsetMovie
+from reviewer.movie.pageindex import frame_index
+from reviewer.movie.pixels import RGB_NOTICE, output_dtype, to_frames
+from reviewer.movie.tiffifd import PageInfo, numpy_dtype, page_info, read_header, read_ifd
+from reviewer.movie.timing import imagej_timing, ome_timing
+
+
+@contextmanager
+def quiet_tifffile():
+    """Keep tifffile's log messages off stderr (problems reach the user as notices or BadInput)."""
+    log = logging.getLogger("tifffile")
+    old = log.level
+    log.setLevel(logging.CRITICAL + 1)
+    try:
+        yield
+    finally:
+        log.setLevel(old)
+
+
+class DecodedTiffMovie(Movie):
+    """Frames decoded page by page by tifffile, each page reached directly at its IFD offset."""
+
+    def __init__(self, path: Path, ifd_offsets: np.ndarray, tif: tifffile.TiffFile, out_dtype: np.dtype,
+                 rgb: bool, shape: tuple[int, int], **kw) -> None:
+        self.ifd_offsets = ifd_offsets
+        self._tif, self._rgb, self._lock = tif, rgb, threading.Lock()
+        super().__init__(path=path, n_frames=len(ifd_offsets), shape=shape, dtype=out_dtype, **kw)
+
+    def _page(self, i: int) -> np.ndarray:
+        with self._lock, quiet_tifffile():
+            fh = self._tif.filehandle
+            fh.seek(int(self.ifd_offsets[i]))
+            try:
+                arr = tifffile.TiffPage(self._tif, index=i).asarray()
+            except Exception as exc:  # noqa: BLE001 - any decoder failure is a bad file
+                raise BadInput(f"{self.path}: frame {i} cannot be decoded ({exc})") from None
+        arr = arr.reshape(self.shape + ((-1,) if self._rgb else ()))
+        return arr
+
+    def _read(self, start: int, stop: int) -> np.ndarray:
+        return to_frames(np.stack([self._page(i) for i in range(start, stop)]), self.dtype, self._rgb)
+
+    def close(self) -> None:
+        self._tif.close()
+
+
+def _metadata(path: Path) -> tuple[tifffile.TiffFile | None, dict]:
+    """tifffile's view of the first page (it reads only the first IFD): ImageJ, OME, shaped."""
+    try:
+        with quiet_tifffile():
+            tif = tifffile.TiffFile(path)
+            page = tif.pages.first
+            meta = {"imagej": tif.imagej_metadata if tif.is_imagej else None,
+                    "ome": tif.ome_metadata if tif.is_ome else None,
+                    "shaped": page.description if page.is_shaped else None}
+    except Exception:  # noqa: BLE001 - tifffile cannot parse it; our own reader may still
+        return None, {}
+    return tif, meta
+
+
+def _declared_frames(meta: dict, samples: int) -> tuple[int | None, bool, str]:
+    """(frames the metadata announces, whether they are contiguous by convention, flavour)."""
+    if meta.get("imagej"):
+        return int(meta["imagej"].get("images", 1) or 1), True, "ImageJ TIFF"
+    if meta.get("ome"):
+        try:
+            px = tifffile.xml2dict(meta["ome"])["OME"]["Image"]
+            px = (px[0] if isinstance(px, list) else px)["Pixels"]
+            return int(px["SizeT"]) * int(px.get("SizeZ", 1)) * int(px.get("SizeC", 1)) // samples, \
+                False, "OME-TIFF"
+        except (KeyError, TypeError, ValueError, IndexError):
+            return None, False, "OME-TIFF"
+    if meta.get("shaped"):
+        try:
+            shape = json.loads(meta["shaped"])["shape"]
+            lead = shape[:-3] if samples > 1 else shape[:-2]
+            return int(np.prod(lead)) if lead else 1, True, "TIFF"
+        except (ValueError, KeyError, TypeError):
+            pass
+    return None, False, "TIFF"
+
+
+def _stored_timing(meta: dict, n: int) -> Timing | None:
+    timing = imagej_timing(meta.get("imagej"))
+    if timing is None and meta.get("ome"):
+        try:
+            timing = ome_timing(tifffile.xml2dict(meta["ome"]), n)
+        except Exception:  # noqa: BLE001 - unreadable XML: no timing
+            timing = None
+    return timing
+
+
+def open_tiff(path: Path, fingerprint: str, show_progress: bool = True) -> Movie:
+    """Open a TIFF file as a movie (timing from the file's metadata; see timing.resolve)."""
+    size = path.stat().st_size
+    fd = os.open(path, os.O_RDONLY)
+    try:
+        return _open(path, fd, size, fingerprint, show_progress)
+    finally:
+        os.close(fd)
+
+
+def _open(path: Path, fd: int, size: int, fingerprint: str, show_progress: bool) -> Movie:
+    hdr = read_header(fd)
+    if hdr is None:
+        raise BadInput(f"{path}: not a TIFF file (no TIFF header)")
+    ifd0 = read_ifd(fd, hdr, hdr.first_ifd, size)
+    if ifd0 is None:
+        raise BadInput(f"{path}: truncated or damaged TIFF: the first image directory is unreadable")
+    info0 = page_info(ifd0)
+    if info0 is None:
+        raise BadInput(f"{path}: damaged TIFF: the first page has no image size")
+    geo = info0.geometry
+    if geo.samples not in (1, 3, 4):
+        raise BadInput(f"{path}: pages with {geo.samples} samples per pixel are not supported")
+    rgb = geo.samples > 1
+    file_dtype = numpy_dtype(geo, hdr.byteorder) if info0.plain else None
+    if info0.plain and file_dtype is None:
+        info0 = PageInfo(geo, -1, info0.data_end)  # unusual pixel type: let tifffile decode it
+    tif, meta = _metadata(path)
+    declared, contiguous, flavour = _declared_frames(meta, geo.samples)
+    notices = [RGB_NOTICE] if rgb else []
+    big = ", BigTIFF" if hdr.bigtiff else ""
+    frame_shape = (geo.height, geo.width, geo.samples) if rgb else (geo.height, geo.width)
+    frame_bytes = int(np.prod(frame_shape)) * geo.bits // 8
+    movie_kw = {"fingerprint": fingerprint}
+
+    offsets = None
+    if info0.plain and contiguous and declared and declared > 1:
+        first = info0.data_offset
+        ifd1 = read_ifd(fd, hdr, ifd0.next, size) if ifd0.next else None
+        info1 = page_info(ifd1) if ifd1 is not None else None
+        if info1 is None or info1.data_offset == first + frame_bytes:
+            n = min(declared, max(0, (size - first) // frame_bytes))
+            offsets = first + np.arange(n, dtype=np.int64) * frame_bytes
+            single = " single IFD," if ifd0.next == 0 else ""
+            layout = f"{flavour}{big}, contiguous stack,{single} {n} frames read by offset"
+            truncated = n < declared
+    if offsets is None:
+        index = frame_index(fd, hdr, size, info0, fingerprint, show_progress)
+        offsets = index.offsets
+        if flavour == "OME-TIFF" and declared and len(offsets) > declared:
+            notices.append(f"{len(offsets)} pages; the first {declared} (OME image 0) are read")
+            offsets = offsets[:declared]
+        n = len(offsets)
+        truncated = index.chain_broken or bool(declared and n < declared)
+        if index.skipped:
+            notices.append(f"{index.skipped} pages of another size or pixel type left out")
+        how = {"stride": "offsets from a constant page stride", "walk": "offsets from an IFD walk",
+               "cache": "cached frame index"}[index.method]
+        steps = np.diff(offsets)
+        kind = ("single-page" if n == 1 else "contiguous" if info0.plain and np.all(steps == frame_bytes)
+                else "page-per-frame")
+        comp = "" if info0.plain else f", compressed (TIFF compression {geo.compression})"
+        layout = f"{kind} {flavour}{big}{comp}, {n} pages, {how}"
+    if n == 0:
+        raise BadInput(f"{path}: truncated TIFF: no whole frame readable")
+    if truncated:
+        if declared and declared > n:
+            notices.append(f"truncated: {n} of {declared} frames readable")
+        else:
+            notices.append(f"truncated: {n} frames readable, the file ends before the next frame")
+    if n == 1:
+        notices.append("a single 2-D image: read as a 1-frame movie")
+    movie_kw.update(layout=layout, timing=_stored_timing(meta, n) or Timing(), notices=notices)
+    if info0.plain:
+        try:
+            out_dtype, note = output_dtype(file_dtype, "TIFF")
+        except ValueError as exc:
+            raise BadInput(f"{path}: {exc}") from None
+        if note:
+            notices.append(note)
+        if rgb:
+            out_dtype = np.dtype(np.float32)
+        if tif is not None:
+            tif.close()
+        return OffsetMovie(path, offsets, frame_shape, file_dtype, out_dtype, **movie_kw)
+    if tif is None:
+        raise BadInput(f"{path}: compressed TIFF pages that tifffile cannot open")
+    page_dtype = tif.pages.first.dtype
+    try:
+        out_dtype, note = output_dtype(page_dtype, "TIFF") if not rgb else (np.dtype(np.float32), None)
+    except (ValueError, TypeError) as exc:
+        raise BadInput(f"{path}: {exc}") from None
+    if note:
+        notices.append(note)
+    return DecodedTiffMovie(path, offsets, tif, out_dtype, rgb, (geo.height, geo.width), **movie_kw)
