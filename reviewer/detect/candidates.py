@@ -1,0 +1,138 @@
+"""Candidate events from per-frame features: threshold, peak picking with non-maximum suppression,
+kinds (step / transient / global) and positions. Works on saved features only (no movie access)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from reviewer.detect.settings import DetectSettings
+from reviewer.detect.statistics import threshold_z
+
+CANDIDATE_COLUMNS = ("frame", "frame_end", "time_s", "kind", "score", "x", "y")
+
+
+def _runs(mask: np.ndarray) -> list[tuple[int, int]]:
+    """(first, last) index of every run of True."""
+    if not mask.any():
+        return []
+    d = np.diff(np.concatenate([[0], mask.astype(np.int8), [0]]))
+    return list(zip(np.flatnonzero(d == 1), np.flatnonzero(d == -1) - 1, strict=True))
+
+
+def _peaks(value: np.ndarray, mask: np.ndarray, radius: int) -> list[int]:
+    """Frames where mask holds and value is the largest within ±radius frames (ties: earliest)."""
+    out: list[int] = []
+    for a, b in _runs(mask):
+        seg = value[a: b + 1]
+        order = np.argsort(-seg, kind="stable")
+        taken: list[int] = []
+        for i in order:
+            if all(abs(int(i) - j) > radius for j in taken):
+                taken.append(int(i))
+        out.extend(a + j for j in taken)
+    return sorted(out)
+
+
+def global_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float) -> list[dict]:
+    """Blanked frames, jumps of the mean level and changes over a large share of the field."""
+    n = len(f["score"])
+    w0 = s.windows[0]
+    events: list[dict] = []
+    for a, b in _runs(f["blank"].astype(bool)):
+        events.append(dict(frame=int(a), frame_end=int(b), score=float(max(z_thr, 2 * z_thr)),
+                           what="blank"))
+    gz, gstep = np.abs(f["gz"]), np.abs(f["gstep"])
+    for t in _peaks(gz, (gz > z_thr) & (gstep > s.global_level), (1 + s.outer) * w0):
+        events.append(dict(frame=int(t), frame_end=int(t), score=float(gz[t]), what="level"))
+    frac = f["frac"]
+    wide = (frac >= s.global_fraction) & (f["score"] > z_thr)
+    for t in _peaks(frac + 1e-3 * f["score"], wide, 2 * max(s.windows)):
+        events.append(dict(frame=int(t), frame_end=int(t), score=float(f["score"][t]),
+                           what="field"))
+    events.sort(key=lambda e: e["frame"])
+    merged: list[dict] = []
+    for e in events:  # one event per disturbance: merge overlapping or adjacent spans
+        if merged and e["frame"] <= merged[-1]["frame_end"] + s.separation:
+            m = merged[-1]
+            m["frame_end"] = max(m["frame_end"], e["frame_end"])
+            m["score"] = max(m["score"], e["score"])
+        else:
+            merged.append(dict(e))
+    return [e for e in merged if 0 <= e["frame"] < n]
+
+
+def local_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float,
+                 blocked: np.ndarray) -> list[dict]:
+    """Peaks of the score with space-time non-maximum suppression, appear/leave pairs -> transients."""
+    score, smax, x, y, sign = f["score"], f["smax"], f["x"], f["y"], f["sign"]
+    windows = np.asarray(s.windows)
+    near = 4.0 * s.tile  # px: two peaks closer than this belong to one place
+    above = np.flatnonzero((score > z_thr) & ~blocked)
+    kept: list[int] = []
+    for t in above[np.argsort(-score[above], kind="stable")]:
+        reach = max(s.separation, int(windows[f["best_window"][t]]))
+        clash = False
+        for k in kept:
+            d = np.hypot(x[t] - x[k], y[t] - y[k])
+            if abs(int(t) - k) <= max(reach, int(windows[f["best_window"][k]])):
+                same = sign[t] == sign[k] or abs(int(t) - k) <= 1
+                if (same and not d > near) or abs(int(t) - k) <= 1:
+                    clash = True
+                    break
+            if (smax[t] < s.shoulder * smax[k] and d <= near
+                    and abs(int(t) - k) <= (2 + s.outer) * int(windows[f["best_window"][k]])):
+                clash = True  # the trend windows' echo of a much stronger step at k
+                break
+        if not clash:
+            kept.append(int(t))
+    kept.sort()
+    events = [dict(frame=t, frame_end=None, score=float(score[t]), x=float(x[t]), y=float(y[t]),
+                   sign=int(sign[t]), kind="step") for t in kept]
+    used: set[int] = set()
+    for i, e in enumerate(events):  # something appears and later leaves the same place
+        if i in used:
+            continue
+        for j in range(i + 1, len(events)):
+            o = events[j]
+            if o["frame"] - e["frame"] > s.transient_max:
+                break
+            if j in used or o["sign"] != -e["sign"] or e["sign"] == 0:
+                continue
+            a, b = smax[e["frame"]], smax[o["frame"]]
+            if np.hypot(o["x"] - e["x"], o["y"] - e["y"]) <= near and min(a, b) >= 0.5 * max(a, b):
+                e["kind"], e["frame_end"] = "transient", o["frame"] - 1
+                e["score"] = max(e["score"], o["score"])
+                used.add(j)
+                break
+    return [e for i, e in enumerate(events) if i not in used]
+
+
+def propose(features: dict[str, np.ndarray], settings: DetectSettings | None = None,
+            timing=None) -> pd.DataFrame:
+    """Candidate events (columns CANDIDATE_COLUMNS, sorted by frame) from saved features."""
+    s = settings or DetectSettings()
+    f = features
+    n = len(f["score"])
+    z_thr = threshold_z(s.alpha, n) / s.sensitivity
+    glob = global_events(f, s, z_thr)
+    blocked = np.zeros(n, bool)
+    pad = (1 + s.outer) * max(s.windows)
+    for g in glob:  # a disturbance of the whole field is never reported as growth
+        # blanked frames are held and level jumps normalised away before scoring: only the
+        # disturbance itself is blocked; a field change (stage jump) spoils every window over it
+        reach = pad if g["what"] == "field" else s.separation
+        lo, hi = g["frame"] - reach, g["frame_end"] + reach
+        blocked[max(lo, 0): min(hi + 1, n)] = True
+    rows = [dict(frame=g["frame"], frame_end=g["frame_end"], kind="global", score=g["score"],
+                 x=np.nan, y=np.nan) for g in glob]
+    for e in local_events(f, s, z_thr, blocked):
+        rows.append({k: e[k] for k in ("frame", "frame_end", "kind", "score", "x", "y")})
+    df = pd.DataFrame(rows, columns=[c for c in CANDIDATE_COLUMNS if c != "time_s"])
+    df = df.sort_values("frame", kind="stable").reset_index(drop=True)
+    df["frame"] = df["frame"].astype(np.int64)
+    df["frame_end"] = df["frame_end"].astype("Int64")
+    times = timing.time_of(df["frame"].to_numpy()) if timing is not None and len(df) else None
+    df["time_s"] = np.asarray(times, dtype=np.float64) if times is not None else np.nan
+    df["score"] = df["score"].astype(np.float64)
+    return df[list(CANDIDATE_COLUMNS)]
