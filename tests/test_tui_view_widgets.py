@@ -206,7 +206,7 @@ async def test_timeline_marks_by_status_and_position():
 
 def _events(n):
     statuses = ("candidate", "accepted", "rejected")
-    return [SimpleNamespace(event_id=i + 1, frame=3 * i, time_s=3 * i / 400.0, kind="step",
+    return [SimpleNamespace(event_id=f"d{i + 1:06d}", frame=3 * i, time_s=3 * i / 400.0, kind="step",
                             score=2.5, status=statuses[i % 3], label="")
             for i in range(n)]
 
@@ -230,12 +230,12 @@ async def test_event_list_with_100k_rows_renders_and_moves():
         assert last[0] == str(3 * 99_999)
         await pilot.press("enter")
         await pilot.pause()
-        assert app.chosen == [100_000]
-        assert el.select_event(501)
+        assert app.chosen == ["d100000"]
+        assert el.select_event("d000501")
         await pilot.pause()
         assert el.cursor_row == 500
         assert el.render_line(1).text.split()[0] == "1500"
-        assert not el.select_event(0)
+        assert not el.select_event("d000000")
 
 
 @sync
@@ -248,7 +248,7 @@ async def test_event_list_click_chooses_and_update_redraws():
         await pilot.pause()
         await pilot.click(EventList, offset=(5, 3))  # line 3 -> row 2
         await pilot.pause()
-        assert app.chosen == [3] and el.cursor_row == 2
+        assert app.chosen == ["d000003"] and el.cursor_row == 2
         changed = SimpleNamespace(**{**vars(rows[4]), "status": "accepted", "label": "layer"})
         assert el.update_event(changed)
         await pilot.pause()

@@ -73,7 +73,7 @@ class EventList(ScrollView, can_focus=True):
     class Chosen(Message):
         """The user chose the event ``event_id`` (Enter or click)."""
 
-        def __init__(self, event_id: int) -> None:
+        def __init__(self, event_id: str) -> None:
             super().__init__()
             self.event_id = event_id
 
@@ -97,7 +97,7 @@ class EventList(ScrollView, can_focus=True):
 
     def update_event(self, event: object) -> bool:
         """Redraw one changed event in place (same id); False when its id is not listed."""
-        row = self._id_index().get(int(event.event_id))  # type: ignore[attr-defined]
+        row = self._id_index().get(str(event.event_id))  # type: ignore[attr-defined]
         if row is None:
             return False
         self._rows[row] = event
@@ -114,20 +114,20 @@ class EventList(ScrollView, can_focus=True):
         return self._cursor
 
     @property
-    def cursor_event_id(self) -> int | None:
-        return int(self._rows[self._cursor].event_id) if self._rows else None  # type: ignore
+    def cursor_event_id(self) -> str | None:
+        return str(self._rows[self._cursor].event_id) if self._rows else None  # type: ignore
 
-    def select_event(self, event_id: int) -> bool:
+    def select_event(self, event_id: str) -> bool:
         """Move the cursor to the event and scroll it into view; False when not listed."""
-        row = self._id_index().get(int(event_id))
+        row = self._id_index().get(str(event_id))
         if row is None:
             return False
         self._move_to(row)
         return True
 
-    def _id_index(self) -> dict[int, int]:
+    def _id_index(self) -> dict[str, int]:
         if self._index is None:
-            self._index = {int(e.event_id): i for i, e in enumerate(self._rows)}  # type: ignore
+            self._index = {str(e.event_id): i for i, e in enumerate(self._rows)}  # type: ignore
         return self._index
 
     # ----- cursor ------------------------------------------------------------------------------
