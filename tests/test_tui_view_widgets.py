@@ -132,10 +132,11 @@ async def test_frameview_mark_is_drawn_around_the_spot():
 
 @sync
 async def test_change_view_shows_brighter_amber_and_darker_blue():
-    before = np.full((3, 8, 8), 100.0, dtype=np.float32)
-    after = before.copy()
-    after[:, :4, :] += 40  # top half brighter
-    after[:, 4:, :] -= 40  # bottom half darker
+    rng = np.random.default_rng(0)
+    before = (100.0 + rng.normal(0, 1, (3, 8, 8))).astype(np.float32)
+    after = (100.0 + rng.normal(0, 1, (3, 8, 8))).astype(np.float32)
+    after[:, :2, 2:6] += 40  # a patch at the top got brighter
+    after[:, 6:, 2:6] -= 40  # a patch at the bottom got darker; the rest is unchanged noise
     fv = FrameView(system="truecolor")
     app = One(fv)
     app.CSS = "FrameView { width: 8; height: 4; }"

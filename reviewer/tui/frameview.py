@@ -13,6 +13,7 @@ import numpy as np
 from rich.color import Color
 from rich.segment import Segment
 from rich.style import Style
+from scipy import ndimage
 from textual.filter import ANSIToTruecolor, LineFilter
 from textual.strip import Strip
 from textual.widget import Widget
@@ -22,6 +23,10 @@ from reviewer.tui import render
 MODES = ("frame", "change", "average")
 CLIPS = (0.0, 0.05, 0.1, 0.25, 0.5, 1.0, 2.0, 5.0, 10.0, 20.0)  # % clipped at each end
 DEFAULT_CLIP = CLIPS.index(0.5)
+# The change view is scaled in units of its own noise: the contrast steps give the number of noise
+# SDs (robust, 1.4826·MAD) at full colour, so unchanged pixels stay near grey and a real change shows.
+CHANGE_SDS = (12.0, 10.0, 8.0, 7.0, 6.0, 5.0, 4.0, 3.0, 2.5, 2.0)
+CHANGE_SMOOTH_PX = 1.0  # Gaussian sigma: shot noise is per pixel, a growth front spans several
 MAX_ZOOM = 64.0
 MARK_RGB = (255, 64, 200)  # pink: stands out on greys, blue and amber
 MARK_GLYPHS = ("\u250c", "\u2510", "\u2514", "\u2518")  # corners around the marked spot
@@ -91,6 +96,8 @@ class FrameView(Widget):
     @property
     def status_text(self) -> str:
         """One short line describing what is shown."""
+        if self._mode == "change":
+            return f"change · zoom {self._zoom:g}× · ±{CHANGE_SDS[self._clip]:g} noise SD"
         c = self.clip
         return f"{self._mode} · zoom {self._zoom:g}× · contrast {c:g}–{100 - c:g} %"
 
@@ -173,7 +180,8 @@ class FrameView(Widget):
             else:
                 a = f if after is None else after.mean(axis=0, dtype=np.float32)
                 b = f if before is None else before.mean(axis=0, dtype=np.float32)
-                self._view = np.asarray(a, dtype=np.float32) - np.asarray(b, dtype=np.float32)
+                diff = np.asarray(a, dtype=np.float32) - np.asarray(b, dtype=np.float32)
+                self._view = ndimage.gaussian_filter(np.nan_to_num(diff), CHANGE_SMOOTH_PX)
         return self._view
 
     def limits(self) -> tuple[float, float]:
@@ -184,7 +192,11 @@ class FrameView(Widget):
             if view is None:
                 return 0.0, 1.0
             if self._mode == "change":
-                scale = render.contrast_limits(np.abs(view), self.clip)[1]
+                sample = view[:: max(1, view.shape[0] // 128), :: max(1, view.shape[1] // 128)]
+                sd = 1.4826 * float(np.median(np.abs(sample - np.median(sample))))
+                scale = CHANGE_SDS[self._clip] * sd
+                if not scale > 0:
+                    scale = render.contrast_limits(np.abs(view), self.clip)[1]
                 got = (-scale, scale)
             else:
                 got = render.contrast_limits(view, self.clip)
