@@ -1,0 +1,61 @@
+"""`reviewer review MOVIE`: the terminal UI to go through the candidates and decide with single keys."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+from reviewer.commands._common import add_movie_arguments
+
+
+def add_review_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--keymap", metavar="NAME|PATH", default=None,
+                   help="key map: a shipped one by name (default, one-handed) or a .toml file; "
+                        "keymap.toml in the settings folder changes single bindings by id")
+    p.add_argument("--session", metavar="DIR", default=None,
+                   help="session folder (default: <movie>.review/ beside the movie, else the user "
+                        "data folder)")
+    p.add_argument("--advance", action="store_true",
+                   help="after a decision, go on to the next pending candidate")
+    p.add_argument("--mouse", action="store_true", help="enable the mouse (off by default)")
+
+
+def register(subparsers) -> None:
+    p = subparsers.add_parser(
+        "review", help="go through the candidate events and decide with single keys",
+        description="Open the review UI on a movie. If the movie has not been scanned yet, the scan "
+                    "runs in the background while frames can be browsed. Every decision is saved "
+                    "as it is made; press ? for the keys, q to quit.")
+    add_movie_arguments(p)
+    add_review_options(p)
+    p.set_defaults(func=run)
+
+
+def review(movie, args: argparse.Namespace) -> int:
+    """Open the app on a movie (path or Movie) with the review options of args; its exit code."""
+    from reviewer.errors import BadInput
+    from reviewer.tui.keymap import load_keymap
+    from reviewer.tui.labels import load_labels
+
+    load_keymap(args.keymap)  # bad key maps and label sets are reported before anything opens
+    load_labels()
+    if not sys.stdin.isatty() or not sys.stdout.isatty():
+        raise BadInput(f"{getattr(args, 'movie', movie)}: the review needs a terminal "
+                       "(stdin and stdout must be a TTY)")
+    from reviewer.store.signals import install_signal_savers
+    from reviewer.tui.app import make_app
+
+    app = make_app(movie, fps=args.fps, keymap=args.keymap, session_dir=args.session,
+                   advance=args.advance)
+    restore = install_signal_savers(app.session, app.on_signal_exit)
+    try:
+        app.run(mouse=args.mouse)
+    finally:
+        restore()
+        app.close_session()
+    code = app.return_code
+    return 0 if code is None else int(code)
+
+
+def run(args: argparse.Namespace) -> int:
+    return review(args.movie, args)

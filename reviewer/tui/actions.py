@@ -1,0 +1,254 @@
+"""What each key does (the action_* methods of ReviewApp). Ids and keys live in keymaps/*.toml."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from reviewer.tui.playback import PlaybackMixin
+
+VIEW_MODES = ("frame", "change", "average")
+
+
+class ReviewActions(PlaybackMixin):
+    """Mixin for ReviewApp: navigation, decisions, view and session keys."""
+
+    def init_actions(self) -> None:
+        self.init_playback()
+
+    # ---- moving ---------------------------------------------------------------------------------
+    def _start_index(self, forward: bool) -> int:
+        """Index in the sorted events where a forward / backward search begins."""
+        cur = self.current_event()
+        if cur is not None and cur.frame == self.frame and cur.event_id in self._ev_index:
+            i = self._ev_index[cur.event_id]
+            return i + 1 if forward else i - 1
+        side = "right" if forward else "left"
+        i = int(np.searchsorted(self._ev_frames, self.frame, side=side))
+        return i if forward else i - 1
+
+    def _jump(self, forward: bool, pending: bool) -> None:
+        if not self._ev_ids:
+            self.notify("no events yet" + (" (the scan is running)" if self.scanning else ""))
+            return
+        i = self._start_index(forward)
+        events = self.session.events
+        step = 1 if forward else -1
+        while 0 <= i < len(events):
+            if not pending or events[i].status == "candidate":
+                self.go(events[i].frame, jumped_to=events[i].event_id)
+                return
+            i += step
+        self.notify(f"no {'pending ' if pending else ''}event {'after' if forward else 'before'} "
+                    f"frame {self.frame}")
+
+    def action_next_event(self) -> None:
+        self._jump(True, False)
+
+    def action_prev_event(self) -> None:
+        self._jump(False, False)
+
+    def action_next_pending(self) -> None:
+        self._jump(True, True)
+
+    def action_prev_pending(self) -> None:
+        self._jump(False, True)
+
+    def action_frame_forward(self) -> None:
+        self.go(self.frame + 1)
+
+    def action_frame_back(self) -> None:
+        self.go(self.frame - 1)
+
+    def action_forward_10(self) -> None:
+        self.go(self.frame + 10)
+
+    def action_back_10(self) -> None:
+        self.go(self.frame - 10)
+
+    def _page(self) -> int:
+        return max(1, round(self.movie.n_frames / 100))
+
+    def action_page_forward(self) -> None:
+        self.go(self.frame + self._page())
+
+    def action_page_back(self) -> None:
+        self.go(self.frame - self._page())
+
+    def action_first_frame(self) -> None:
+        self.go(0)
+
+    def action_last_frame(self) -> None:
+        self.go(self.movie.n_frames - 1)
+
+    def action_go_to(self) -> None:
+        from reviewer.tui.screens import GoToScreen
+
+        def done(frame: int | None) -> None:
+            if frame is not None:
+                self.go(frame)
+
+        self.push_screen(GoToScreen(self.movie.n_frames, self.session.time_of, self.session.times_s,
+                                    self.session.meta.get("fps")), done)
+
+    def on_event_list_chosen(self, message) -> None:
+        ev = self.session.get(message.event_id)
+        self.go(ev.frame, jumped_to=ev.event_id)
+
+    # ---- deciding -------------------------------------------------------------------------------
+    def _target(self):
+        ev = self.current_event()
+        if ev is None:
+            self.notify("no current event: jump to one (n, p) or mark one (m)", severity="warning")
+        return ev
+
+    def _after_change(self, decided: bool = True) -> None:
+        self.refresh_events()
+        if decided and self.advance:
+            self._jump(True, True)
+        else:
+            self.show_frame()
+
+    def action_accept(self) -> None:
+        if (ev := self._target()) is not None:
+            self.session.accept(ev.event_id)
+            self._after_change()
+
+    def action_reject(self) -> None:
+        if (ev := self._target()) is not None:
+            self.session.reject(ev.event_id)
+            self._after_change()
+
+    def action_label(self, k: int) -> None:
+        if k > len(self.labels):
+            self.notify(f"no label {k}: the label set has {len(self.labels)}", severity="warning")
+            return
+        if (ev := self._target()) is not None:
+            self.session.set_label(ev.event_id, self.labels[k - 1])
+            self._after_change()
+
+    def action_mark(self) -> None:
+        ev = self.session.add(self.frame)
+        self.current_id = ev.event_id
+        self._after_change(decided=False)
+
+    def _nudge(self, delta: int) -> None:
+        if (ev := self._target()) is not None:
+            ev = self.session.nudge(ev.event_id, delta)
+            self.refresh_events()
+            self.go(ev.frame, jumped_to=ev.event_id)
+
+    def action_nudge_earlier(self) -> None:
+        self._nudge(-1)
+
+    def action_nudge_later(self) -> None:
+        self._nudge(+1)
+
+    def action_reject_global(self) -> None:
+        from reviewer.tui.screens import ConfirmScreen
+
+        n = sum(1 for e in self.session.events if e.kind == "global" and e.status == "candidate")
+        if not n:
+            self.notify("no pending 'global' candidates")
+            return
+
+        def done(yes: bool | None) -> None:
+            if yes:
+                count = self.session.reject_kind("global")
+                self.notify(f"rejected {count} 'global' candidates (u undoes)")
+                self._after_change(decided=False)
+
+        self.push_screen(ConfirmScreen(f"Reject all {n} pending 'global' candidates "
+                                       "(blanked frames, beam and stage jumps)?"), done)
+
+    def _history(self, redo: bool) -> None:
+        if (self.session.redo if redo else self.session.undo)():
+            self._after_change(decided=False)
+        else:
+            self.notify(f"nothing to {'redo' if redo else 'undo'}")
+
+    def action_undo(self) -> None:
+        self._history(False)
+
+    def action_redo(self) -> None:
+        self._history(True)
+
+    # ---- view -----------------------------------------------------------------------------------
+    def action_change_view(self) -> None:
+        mode = getattr(self.frameview, "mode", "frame")
+        self.frameview.mode = VIEW_MODES[(VIEW_MODES.index(mode) + 1) % len(VIEW_MODES)]
+        self.show_frame()
+
+    def _view(self, method: str, *args) -> None:
+        getattr(self.frameview, method)(*args)
+        self.update_status()
+
+    def action_contrast_stronger(self) -> None:
+        self._view("contrast_narrower")
+
+    def action_contrast_flatter(self) -> None:
+        self._view("contrast_wider")
+
+    def action_zoom_in(self) -> None:
+        self._view("zoom_in")
+
+    def action_zoom_out(self) -> None:
+        self._view("zoom_out")
+
+    def action_zoom_event(self) -> None:
+        ev = self.current_event()
+        if ev is None or ev.x is None or ev.y is None:
+            self.notify("the current event has no place to zoom to")
+            return
+        self._view("zoom_to", ev.x, ev.y)
+
+    def action_pan_left(self) -> None:
+        self._view("pan", -1, 0)
+
+    def action_pan_right(self) -> None:
+        self._view("pan", 1, 0)
+
+    def action_pan_up(self) -> None:
+        self._view("pan", 0, -1)
+
+    def action_pan_down(self) -> None:
+        self._view("pan", 0, 1)
+
+    def action_timeline_in(self) -> None:
+        self.timeline.zoom_in()
+
+    def action_timeline_out(self) -> None:
+        self.timeline.zoom_out()
+
+    # ---- panels and session ---------------------------------------------------------------------
+    def action_kinetics(self) -> None:
+        from reviewer.tui.kinetics_panel import KineticsScreen
+
+        self.push_screen(KineticsScreen(self.session, self.movie))
+
+    def action_help(self) -> None:
+        from reviewer.tui.screens import HelpScreen
+
+        self.push_screen(HelpScreen(self.keymap, self.labels))
+
+    def export_path(self):
+        """Where `e` writes: the same default as `reviewer export MOVIE`."""
+        from reviewer.commands.export import default_output
+
+        return default_output(self.movie.path, self.session.folder)
+
+    def action_export(self) -> None:
+        from reviewer.errors import BadInput
+        from reviewer.store.export import export_events
+
+        out = self.export_path()
+        try:
+            try:
+                csv_path, json_path = export_events(self.session, out, movie=self.movie)
+            except OSError:  # the movie's folder refused: the session folder, as `export` does
+                out = self.session.folder / out.name
+                csv_path, json_path = export_events(self.session, out, movie=self.movie)
+        except (BadInput, OSError) as exc:
+            self.notify(f"export failed: {exc}", severity="error", timeout=10)
+            return
+        self.notify(f"exported {len(self.session.events)} events to {csv_path} (+ {json_path.name})",
+                    timeout=8)

@@ -1,0 +1,242 @@
+"""The review app: frame pane, event list, timeline, status line; keys from the key map data.
+
+`make_app(...)` opens the movie, the key map, the label set, the scan cache and the session, and returns
+a ReviewApp; the `review` command and the tests both use it. Key actions live in tui/actions.py, the
+background scan in tui/scanning.py.
+"""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+from typing import ClassVar
+
+import numpy as np
+from textual.app import App, ComposeResult
+from textual.binding import Binding
+from textual.containers import Horizontal
+from textual.widgets import Footer, ProgressBar
+
+from reviewer.tui import keymap as km
+from reviewer.tui.actions import ReviewActions
+from reviewer.tui.labels import load_labels
+from reviewer.tui.scanning import ScanMixin
+from reviewer.tui.status import StatusLine
+
+MIN_SIZE = (80, 24)
+CONTEXT_FRAMES = 4  # frames averaged before / after for the what-changed and average views
+POSITION_SAVE_S = 2.0  # the position is journaled this long after the cursor stops
+
+
+class ReviewApp(ScanMixin, ReviewActions, App):
+    """Review one movie's events. Use make_app() to build one."""
+
+    CSS_PATH = "app.tcss"
+    ENABLE_COMMAND_PALETTE = False
+    AUTO_FOCUS = None  # the review keys act globally; the event list is not focused
+    TITLE = "reviewer"
+    DEFAULT_SPECS = tuple(km.default_specs())
+    BINDINGS: ClassVar = km.make_bindings(DEFAULT_SPECS) + [
+        Binding("ctrl+q", "quit", show=False, priority=True)]
+
+    def __init__(self, movie, session, *, keymap: km.KeyMap, labels: list[str], scan=None,
+                 advance: bool = False, run_scan: bool = True, play_fps: float = 12.0) -> None:
+        super().__init__()
+        self.movie = movie
+        self.session = session
+        self.keymap = keymap
+        self.labels = labels
+        self.advance = advance
+        self.play_fps = play_fps
+        self.frame = min(max(int(session.position), 0), movie.n_frames - 1)
+        self.current_id: str | None = None
+        self._ev_frames = np.empty(0, dtype=np.int64)
+        self._ev_ids: list[str] = []
+        self._ev_index: dict[str, int] = {}
+        self._ev_dirty = True
+        self._position_timer = None
+        self._session_closed = False
+        self.init_actions()
+        self.init_scan(scan, run_scan)
+
+    # ---- layout ---------------------------------------------------------------------------------
+    def compose(self) -> ComposeResult:
+        from reviewer.tui.eventlist import EventList
+        from reviewer.tui.frameview import FrameView
+        from reviewer.tui.timeline import Timeline
+
+        with Horizontal(id="body"):
+            yield FrameView(id="frame")
+            yield EventList(id="events")
+        yield Timeline(id="timeline")
+        yield ProgressBar(id="scanbar", total=self.movie.n_frames, show_eta=True)
+        yield StatusLine(id="status")
+        yield Footer()
+
+    def on_mount(self) -> None:
+        self.set_keymap(self.keymap.overrides(self.DEFAULT_SPECS))
+        self.frameview = self.query_one("#frame")
+        self.timeline = self.query_one("#timeline")
+        self.eventlist = self.query_one("#events")
+        self.status = self.query_one("#status", StatusLine)
+        self.start_scan()
+        self.refresh_events()
+        self.current_id = self.event_near(self.frame)
+        self.show_frame()
+        for note in [*getattr(self.movie, "notices", []), *self.session.notices]:
+            self.notify(note, severity="warning", timeout=8)
+        if self.session.lock_warning:
+            self.notify(self.session.lock_warning, title="Another session", severity="error",
+                        timeout=15)
+        self.check_size()
+
+    def on_timeline_seek(self, message) -> None:
+        self.go(message.frame)
+
+    def on_resize(self, event) -> None:
+        self.check_size()
+
+    def check_size(self) -> None:
+        from reviewer.tui.screens import TooSmallScreen
+
+        small = self.size.width < MIN_SIZE[0] or self.size.height < MIN_SIZE[1]
+        if small and not any(isinstance(s, TooSmallScreen) for s in self.screen_stack):
+            self.push_screen(TooSmallScreen(MIN_SIZE))  # it closes itself once big enough
+
+    # ---- events (the session's list, indexed by frame) ------------------------------------------
+    def refresh_events(self, rows: bool = True) -> None:
+        """Re-read the session's events after a change; update the list and the timeline marks."""
+        events = self.session.events
+        self._ev_frames = np.fromiter((e.frame for e in events), dtype=np.int64, count=len(events))
+        self._ev_ids = [e.event_id for e in events]
+        self._ev_index = {eid: i for i, eid in enumerate(self._ev_ids)}
+        if rows:
+            self.eventlist.set_rows(events)
+        self.timeline.set_marks(self._ev_frames, [e.status for e in events])
+        self._ev_dirty = False
+
+    def event_near(self, frame: int) -> str | None:
+        """The event at (or else nearest to) a frame."""
+        if not len(self._ev_frames):
+            return None
+        i = int(np.searchsorted(self._ev_frames, frame))
+        options = [j for j in (i - 1, i) if 0 <= j < len(self._ev_frames)]
+        j = min(options, key=lambda j: abs(int(self._ev_frames[j]) - frame))
+        return self._ev_ids[j]
+
+    def event_at(self, frame: int) -> str | None:
+        i = int(np.searchsorted(self._ev_frames, frame))
+        if i < len(self._ev_frames) and self._ev_frames[i] == frame:
+            return self._ev_ids[i]
+        return None
+
+    def current_event(self):
+        if self.current_id is None:
+            return None
+        try:
+            return self.session.get(self.current_id)
+        except KeyError:
+            self.current_id = None
+            return None
+
+    # ---- drawing --------------------------------------------------------------------------------
+    def context(self, frame: int) -> tuple[np.ndarray | None, np.ndarray | None]:
+        """The frames just before and just after this one (for the change and average views)."""
+        if self.frameview.mode == "frame":
+            return None, None
+        return (self.movie.block(frame - CONTEXT_FRAMES, frame),
+                self.movie.block(frame + 1, frame + 1 + CONTEXT_FRAMES))
+
+    def show_frame(self) -> None:
+        """Draw the current frame, its mark, the timeline cursor and the status line."""
+        before, after = self.context(self.frame)
+        self.frameview.show(self.movie.frame(self.frame), before=before, after=after)
+        ev = self.current_event()
+        on_it = ev is not None and ev.frame <= self.frame <= max(ev.frame, ev.frame_end or ev.frame)
+        if on_it and ev.x is not None and ev.y is not None:
+            self.frameview.set_mark(ev.x, ev.y)
+        else:
+            self.frameview.set_mark(None)
+        self.timeline.set_position(self.frame)
+        if ev is not None:
+            self.eventlist.select_event(ev.event_id)
+        self.update_status()
+
+    def update_status(self) -> None:
+        self.status.show(self.frame, self.movie.n_frames, self.session.time_of(self.frame),
+                         self.current_event(), self.status_extras())
+
+    def status_extras(self) -> dict:
+        counts = self.session.counts()
+        return {"pending": counts.get("candidate", 0), "mode": self.frameview.status_text,
+                "play": self.play_text(), "scan": self.scan_text()}
+
+    def go(self, frame: int, *, jumped_to: str | None = None) -> None:
+        """Move the cursor; the current event becomes the one jumped to, or the one at the frame."""
+        self.frame = int(min(max(frame, 0), self.movie.n_frames - 1))
+        if jumped_to is not None:
+            self.current_id = jumped_to
+        else:
+            here = self.event_at(self.frame)
+            if here is not None:
+                self.current_id = here
+        self.show_frame()
+        self.save_position_later()
+
+    def save_position_later(self) -> None:
+        if self._position_timer is not None:
+            self._position_timer.stop()
+        self._position_timer = self.set_timer(POSITION_SAVE_S, self.save_position)
+
+    def save_position(self) -> None:
+        if not self._session_closed:
+            self.session.set_position(self.frame)
+
+    # ---- leaving --------------------------------------------------------------------------------
+    def close_session(self) -> None:
+        """Journal the position, compact and unlock (every decision is already on disk)."""
+        if self._session_closed:
+            return
+        self.cancel_scan()
+        self.session.set_position(self.frame)
+        self._session_closed = True
+        self.session.close()
+
+    async def action_quit(self) -> None:
+        self.close_session()
+        self.exit(0)
+
+    def on_signal_exit(self, signum: int) -> None:
+        """Called by the store's signal saver (the session is already closed)."""
+        self._session_closed = True
+        self.cancel_scan()
+        self.exit(return_code=128 + signum)
+
+
+def make_app(movie, *, fps: float | None = None, keymap: str | None = None,
+             session_dir: str | os.PathLike | None = None, advance: bool = False,
+             run_scan: bool = True, play_fps: float | None = None) -> ReviewApp:
+    """Open everything the review needs; BadInput for any bad file (before the screen opens)."""
+    from reviewer.store.session import Session
+
+    if isinstance(movie, str | Path):
+        from reviewer.movie import open_movie
+
+        movie = open_movie(movie, fps=fps)
+    keys = km.load_keymap(keymap)
+    labels = load_labels()
+    from reviewer.tui.scanning import cached_scan
+
+    scan = cached_scan(movie)
+    meta = {"frames": movie.n_frames, "fps": movie.fps,
+            "times_s": movie.timing.times_s if movie.timing.fps is None else None,
+            "height": movie.height, "width": movie.width}
+    if scan is not None:
+        meta["detector"] = scan.settings
+    session = Session.open(movie.path, movie.fingerprint, override=session_dir, meta=meta)
+    if scan is not None and not session.seeded:
+        session.seed(scan.candidates)
+    if play_fps is None:
+        play_fps = float(os.environ.get("REVIEWER_PLAY_FPS", "12") or 12)
+    return ReviewApp(movie, session, keymap=keys, labels=labels, scan=scan, advance=advance,
+                     run_scan=run_scan, play_fps=play_fps)

@@ -1,0 +1,108 @@
+"""End to end in a real terminal: `reviewer review` in a 200x60 tmux pane on a scanned 8,000-frame movie,
+keys typed with send-keys (waiting for each repaint), then `reviewer export` read back as CSV; a second
+session's decision survives SIGKILL. Skipped when tmux is not installed."""
+
+from __future__ import annotations
+
+import csv
+import os
+import shlex
+import shutil
+import signal
+import subprocess
+import sys
+import time
+import uuid
+
+import pytest
+
+pytestmark = pytest.mark.skipif(shutil.which("tmux") is None, reason="tmux is not installed")
+
+KEYS = ["n", "a", "n", "r", "n", "2", "n", "a", "q"]
+REVIEWER = [sys.executable, "-m", "reviewer"]
+
+
+def _tmux(sock: str, *args: str) -> str:
+    out = subprocess.run(["tmux", "-L", sock, "-f", "/dev/null", *args], capture_output=True,
+                         text=True, timeout=10)
+    return out.stdout
+
+
+def _status(sock: str, target: str) -> str:
+    """The status line of the app (the line with 'frame N/M'), or '' before the first paint."""
+    lines = _tmux(sock, "capture-pane", "-p", "-t", target).splitlines()
+    return next((ln for ln in lines if ln.startswith(" frame ") and "│" in ln), "")
+
+
+def _wait(pred, what: str, timeout: float = 20.0):
+    end = time.monotonic() + timeout
+    while time.monotonic() < end:
+        value = pred()
+        if value:
+            return value
+        time.sleep(0.05)
+    raise AssertionError(f"timed out waiting for {what}")
+
+
+def _open(sock: str, name: str, movie, env: dict) -> str:
+    cmd = " ".join(["exec", "env", *(f"{k}={shlex.quote(v)}" for k, v in env.items()),
+                    *map(shlex.quote, REVIEWER), "review", shlex.quote(str(movie))])
+    verb = ["new-session", "-d", "-s", name, "-x", "200", "-y", "60"]
+    _tmux(sock, *verb, cmd)
+    _wait(lambda: "pending" in _status(sock, name), "the first paint")
+    return name
+
+
+def _type(sock: str, target: str, key: str) -> None:
+    before = _status(sock, target)
+    _tmux(sock, "send-keys", "-t", target, key)
+    _wait(lambda: _status(sock, target) != before, f"a repaint after {key!r}", timeout=10)
+
+
+def _export(movie, env: dict, out) -> list[dict]:
+    subprocess.run([*REVIEWER, "export", str(movie), "-o", str(out)], check=True, env=env,
+                   capture_output=True, timeout=60)
+    with open(out, newline="", encoding="utf-8") as f:
+        return list(csv.DictReader(f))
+
+
+def test_review_in_tmux_then_export(tmp_path):
+    from sample_movies.growth import PRESETS, scaled, write_movie
+
+    env = {k: os.environ[k] for k in ("REVIEWER_CACHE_DIR", "REVIEWER_DATA_DIR",
+                                      "REVIEWER_CONFIG_DIR")}
+    full_env = {**os.environ, **env}
+    movie = tmp_path / "platelets.tif"
+    write_movie(movie, scaled(PRESETS["sample"], 8000, 48, 64), seed=3, fps=400.0)
+    subprocess.run([*REVIEWER, "scan", str(movie)], check=True, env=full_env,
+                   capture_output=True, timeout=120)
+
+    sock = f"reviewer-e2e-{uuid.uuid4().hex[:8]}"
+    try:
+        first = _open(sock, "one", movie, env)
+        for key in KEYS[:-1]:
+            _type(sock, first, key)
+        _tmux(sock, "send-keys", "-t", first, "q")
+        _wait(lambda: first not in _tmux(sock, "list-sessions", "-F", "#{session_name}"),
+              "the app to quit", timeout=15)
+
+        rows = _export(movie, full_env, tmp_path / "one.csv")
+        accepted = [r for r in rows if r["status"] == "accepted"]
+        rejected = [r for r in rows if r["status"] == "rejected"]
+        assert len(accepted) == 3 and len(rejected) == 1
+        assert [r["label"] for r in accepted if r["label"]] == ["nucleation"]  # label 2 of labels.toml
+        reviewed = sorted(int(r["frame"]) for r in accepted + rejected)
+
+        second = _open(sock, "two", movie, env)
+        _type(sock, second, "N")
+        _type(sock, second, "a")
+        pid = int(_tmux(sock, "list-panes", "-t", second, "-F", "#{pane_pid}").split()[0])
+        os.kill(pid, signal.SIGKILL)
+
+        rows = _export(movie, full_env, tmp_path / "two.csv")
+        accepted = [r for r in rows if r["status"] == "accepted"]
+        assert len(accepted) == 4
+        assert sum(r["status"] == "rejected" for r in rows) == 1
+        assert max(int(r["frame"]) for r in accepted) > max(reviewed)  # the new one is further on
+    finally:
+        subprocess.run(["tmux", "-L", sock, "kill-server"], capture_output=True, timeout=10)
