@@ -9,6 +9,7 @@ from scipy import ndimage, stats
 from reviewer.detect import DetectSettings, propose, scan_movie
 from reviewer.detect.candidates import _peaks
 from reviewer.detect.drift import phase_shift
+from reviewer.detect.scoring import onset_shift
 from reviewer.detect.statistics import step_z, threshold_z
 from reviewer.movie import ArrayMovie, Timing
 
@@ -38,6 +39,18 @@ def test_step_statistic_finds_the_change_points_ruptures_finds():
     assert len(ours) == len(ref) == len(bkps)
     for a, b in zip(ours, ref, strict=True):
         assert abs(a - b) <= 1
+
+
+def test_onset_split_is_the_single_change_point_ruptures_finds():
+    rpt = pytest.importorskip("ruptures")
+    rng = np.random.default_rng(21)
+    for true_k, height in [(17, 2.0), (30, -1.5), (9, 0.8), (41, 3.0)]:
+        sig = rng.standard_normal(49) + np.where(np.arange(49) >= true_k, height, 0.0)
+        # reference: ruptures Dynp (exact search) with the l2 cost, one change point, jump=1
+        ref = rpt.Dynp(model="l2", min_size=1, jump=1).fit(sig).predict(n_bkps=1)[0]
+        xn = sig.astype(np.float32)[:, None, None]
+        ours = 24 + onset_shift(xn, 24, (1, 1), 0, 0, 1 if height > 0 else -1, 24)
+        assert ours == ref, (true_k, ours, ref)
 
 
 def _texture(shape, rng, counts=60.0):

@@ -16,7 +16,7 @@ import pandas as pd
 from reviewer.detect.candidates import CANDIDATE_COLUMNS
 from reviewer.detect.stream import ScanResult
 
-FORMAT = 1
+FORMAT = 2  # 2: located frames are per-window peaks and carry an onset shift
 
 
 def _replace(tmp: Path, final: Path) -> None:

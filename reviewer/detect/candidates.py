@@ -7,9 +7,10 @@ import numpy as np
 import pandas as pd
 
 from reviewer.detect.settings import DetectSettings
-from reviewer.detect.statistics import threshold_z
+from reviewer.detect.statistics import raw_level, threshold_z
 
 CANDIDATE_COLUMNS = ("frame", "frame_end", "time_s", "kind", "score", "x", "y")
+ECHO_SHARE = 0.8  # a kept event explains a nearby peak when its own value there is ≥ this share
 
 
 def _runs(mask: np.ndarray) -> list[tuple[int, int]]:
@@ -62,33 +63,69 @@ def global_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float) -> 
     return [e for e in merged if 0 <= e["frame"] < n]
 
 
+def _order(f: dict[str, np.ndarray], raw_thr: float, ok: np.ndarray) -> list[tuple[int, int]]:
+    """(window index, frame) of the located frames, shortest window first (a short window places
+    an event sharply and separates close events that a long one merges), strongest first within
+    a window. A frame enters for window k when it is a local peak of that window's series above
+    the threshold and ok (frames, windows) holds."""
+    zw = f["zw"]
+    out: list[tuple[int, int]] = []
+    for k in range(zw.shape[1]):
+        pw = zw[:, k]
+        peak = (pw > raw_thr) & ok[:, min(k, ok.shape[1] - 1)]
+        peak[1:] &= pw[1:] >= pw[:-1]
+        peak[:-1] &= pw[:-1] >= pw[1:]
+        idx = np.flatnonzero(peak)
+        out.extend((k, int(t)) for t in idx[np.argsort(-pw[idx], kind="stable")])
+    return out
+
+
 def local_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float,
                  blocked: np.ndarray) -> list[dict]:
-    """Peaks of the score with space-time non-maximum suppression, appear/leave pairs -> transients."""
+    """Peaks of the per-window scores with space-time non-maximum suppression (short windows
+    first), each placed on its onset frame; appear/leave pairs -> transients."""
     score, smax, x, y, sign = f["score"], f["smax"], f["x"], f["y"], f["sign"]
+    n = len(score)
     windows = np.asarray(s.windows)
     near = 4.0 * s.tile  # px: two peaks closer than this belong to one place
-    above = np.flatnonzero((score > z_thr) & ~blocked)
+    k_eff = float(f["k_eff"]) if "k_eff" in f else 1.0
+    blocked = blocked.reshape(n, -1)  # (n,) or (n, n_windows)
+    ok = ((score > z_thr) & np.isfinite(x))[:, None] & ~blocked  # located = local peaks
+    shift = f["shift"].astype(np.int64) if "shift" in f else np.zeros(n, np.int64)
+    longest = int(windows.max())
+    zw = f["zw"]
     kept: list[int] = []
-    for t in above[np.argsort(-score[above], kind="stable")]:
-        reach = max(s.separation, int(windows[f["best_window"][t]]))
+    kept_w: list[int] = []
+    seen: set[int] = set()
+    for kw, t in _order(f, raw_level(z_thr, k_eff), ok):
+        if t in seen:
+            continue
+        reach = max(s.separation, int(windows[kw]))
         clash = False
-        for k in kept:
+        for k, wk in zip(kept, kept_w, strict=True):
             d = np.hypot(x[t] - x[k], y[t] - y[k])
-            if abs(int(t) - k) <= max(reach, int(windows[f["best_window"][k]])):
-                same = sign[t] == sign[k] or abs(int(t) - k) <= 1
-                if (same and not d > near) or abs(int(t) - k) <= 1:
+            if abs(t - k) <= max(reach, wk):
+                same = sign[t] == sign[k] or abs(t - k) <= 1
+                # an echo is never much stronger than its source in the same window: a peak
+                # well above k's own value there is another event (a transient at k barely
+                # moves a long window)
+                source = zw[k, kw] >= ECHO_SHARE * zw[t, kw]
+                if (same and source and not d > near) or abs(t - k) <= 1:
                     clash = True
                     break
             if (smax[t] < s.shoulder * smax[k] and d <= near
-                    and abs(int(t) - k) <= (2 + s.outer) * int(windows[f["best_window"][k]])):
-                clash = True  # the trend windows' echo of a much stronger step at k
+                    and abs(t - k) <= (2 + s.outer) * longest):
+                clash = True  # the long windows' echo of a much stronger step at k
                 break
         if not clash:
-            kept.append(int(t))
+            kept.append(t)
+            kept_w.append(int(windows[kw]))
+            seen.add(t)
     kept.sort()
-    events = [dict(frame=t, frame_end=None, score=float(score[t]), x=float(x[t]), y=float(y[t]),
-                   sign=int(sign[t]), kind="step") for t in kept]
+    onset = {t: min(max(t + int(shift[t]), 0), n - 1) for t in kept}
+    events = [dict(frame=onset[t], frame_end=None, score=float(score[t]), x=float(x[t]),
+                   y=float(y[t]), sign=int(sign[t]), kind="step", at=t) for t in kept]
+    events.sort(key=lambda e: e["frame"])
     used: set[int] = set()
     for i, e in enumerate(events):  # something appears and later leaves the same place
         if i in used:
@@ -99,7 +136,7 @@ def local_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float,
                 break
             if j in used or o["sign"] != -e["sign"] or e["sign"] == 0:
                 continue
-            a, b = smax[e["frame"]], smax[o["frame"]]
+            a, b = smax[e["at"]], smax[o["at"]]
             if np.hypot(o["x"] - e["x"], o["y"] - e["y"]) <= near and min(a, b) >= 0.5 * max(a, b):
                 e["kind"], e["frame_end"] = "transient", o["frame"] - 1
                 e["score"] = max(e["score"], o["score"])
@@ -116,14 +153,15 @@ def propose(features: dict[str, np.ndarray], settings: DetectSettings | None = N
     n = len(f["score"])
     z_thr = threshold_z(s.alpha, n) / s.sensitivity
     glob = global_events(f, s, z_thr)
-    blocked = np.zeros(n, bool)
-    pad = (1 + s.outer) * max(s.windows)
+    blocked = np.zeros((n, len(s.windows)), bool)  # per window length
     for g in glob:  # a disturbance of the whole field is never reported as growth
         # blanked frames are held and level jumps normalised away before scoring: only the
-        # disturbance itself is blocked; a field change (stage jump) spoils every window over it
-        reach = pad if g["what"] == "field" else s.separation
-        lo, hi = g["frame"] - reach, g["frame_end"] + reach
-        blocked[max(lo, 0): min(hi + 1, n)] = True
+        # disturbance itself is blocked; a field change (stage jump) spoils every window over
+        # it, so each window length is blocked as far as it reaches
+        for k, w in enumerate(s.windows):
+            reach = (1 + s.outer) * w + s.separation if g["what"] == "field" else s.separation
+            lo, hi = g["frame"] - reach, g["frame_end"] + reach
+            blocked[max(lo, 0): min(hi + 1, n), k] = True
     rows = [dict(frame=g["frame"], frame_end=g["frame_end"], kind="global", score=g["score"],
                  x=np.nan, y=np.nan) for g in glob]
     for e in local_events(f, s, z_thr, blocked):

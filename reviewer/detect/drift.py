@@ -28,7 +28,9 @@ def _dft_around(product: np.ndarray, centre: np.ndarray, factor: int, size: int)
     xs = centre[1] + (np.arange(size) - size // 2) / factor
     ey = np.exp(2j * np.pi * ys[:, None] * np.fft.fftfreq(ny)[None, :])
     ex = np.exp(2j * np.pi * np.fft.fftfreq(nx)[:, None] * xs[None, :])
-    return ey @ product @ ex
+    # einsum's own loops, not a (multi-threaded) BLAS product: these matrices are small and a
+    # threaded BLAS spins against other work on a shared machine
+    return np.einsum("ij,jk->ik", np.einsum("ij,jk->ik", ey, product), ex)
 
 
 def phase_shift(ref: np.ndarray, mov: np.ndarray, upsample: int = 20,

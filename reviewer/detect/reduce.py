@@ -1,4 +1,4 @@
-"""Early reduction of raw frames to coarse grids (bins, tiles) and spatial pooling on the tile grid."""
+"""Early reduction of raw frames to tile sums, and spatial pooling on the tile grid."""
 
 from __future__ import annotations
 
@@ -6,7 +6,8 @@ import numpy as np
 
 # Pooled tile shapes (rows, cols): single tiles, pairs, squares and strips so a change along a line
 # (a growth front) and a compact blob (an island) both meet a window that holds most of it.
-SHAPES: tuple[tuple[int, int], ...] = ((1, 1), (1, 2), (2, 1), (2, 2), (1, 4), (4, 1), (4, 4))
+SHAPES: tuple[tuple[int, int], ...] = ((1, 1), (1, 2), (2, 1), (2, 2), (1, 4), (4, 1))
+_GAIN = tuple(np.float32(1.0 / np.sqrt(h * w)) for h, w in SHAPES)
 
 
 def _accumulator(dtype: np.dtype) -> np.dtype:
@@ -20,58 +21,137 @@ def _accumulator(dtype: np.dtype) -> np.dtype:
     return np.dtype(np.float32) if dtype.itemsize <= 4 else np.dtype(np.float64)
 
 
+def _row_sums(a: np.ndarray, factor: int) -> np.ndarray:
+    """(n, gy·factor, W) -> (n, gy, W): sums of `factor` consecutive rows. uint16 frames whose
+    maximum leaves room (factor × max < 2^16) are added in their own dtype (no widening copy: this
+    is the one pass over every pixel, it runs near memory speed); others widen first."""
+    n, hh, w = a.shape
+    v = a.reshape(n, hh // factor, factor, w)
+    if a.dtype == np.uint16 and int(a.max()) * factor < 65536:
+        r = v[:, :, 0] + v[:, :, 1] if factor > 1 else v[:, :, 0].copy()
+        for k in range(2, factor):
+            r += v[:, :, k]
+        return r
+    if a.dtype.kind == "b":
+        v = v.astype(np.uint8)
+    return v.sum(axis=2, dtype=_accumulator(v.dtype))
+
+
 def bin_block(block: np.ndarray, factor: int, gy: int, gx: int) -> np.ndarray:
     """(n, H, W) raw frames -> (n, gy, gx) float32 sums of factor×factor pixels (rows first: the
-    contiguous adds are the fast ones)."""
+    contiguous adds are the fast ones; edges that do not fill a block are dropped). No matrix
+    product here: a multi-threaded BLAS spins against other work on a shared machine."""
     n = block.shape[0]
-    a = block[:, : gy * factor, : gx * factor]
-    if a.dtype.kind == "b":
-        a = a.astype(np.uint8)
-    acc = _accumulator(a.dtype)
-    rows = a.reshape(n, gy, factor, gx * factor).sum(axis=2, dtype=acc)
-    return rows.reshape(n, gy, gx, factor).sum(axis=3).astype(np.float32, copy=False)
-
-
-def tiles_from_bins(bins: np.ndarray) -> np.ndarray:
-    """(n, 2gy, 2gx) bins -> (n, gy, gx) tiles (2×2 bins each)."""
-    return bins[:, 0::2, 0::2] + bins[:, 1::2, 0::2] + bins[:, 0::2, 1::2] + bins[:, 1::2, 1::2]
+    rows = _row_sums(block[:, : gy * factor, : gx * factor], factor)
+    cols = rows.reshape(n, gy, gx, factor)
+    if factor % 2 == 0:  # halve the column groups with strided adds (faster than a short reduce)
+        r = np.add(cols[..., 0::2], cols[..., 1::2], dtype=np.float32)
+        while r.shape[-1] % 2 == 0 and r.shape[-1] > 1:
+            r = r[..., 0::2] + r[..., 1::2]
+        return r.sum(axis=-1) if r.shape[-1] > 1 else r[..., 0]
+    return cols.sum(axis=3, dtype=np.float32)
 
 
 def pooled(z: np.ndarray) -> list[np.ndarray]:
     """Normalised box sums of unit-variance tile values z (n, gy, gx) for every shape in SHAPES
     (a box sum of m independent unit-variance values divided by √m has unit variance)."""
+    n = z.shape[0]
     out: dict[tuple[int, int], np.ndarray] = {(1, 1): z}
     h2 = z[:, :, :-1] + z[:, :, 1:]
     v2 = z[:, :-1, :] + z[:, 1:, :]
-    q = h2[:, :-1, :] + h2[:, 1:, :]
-    out[(1, 2)], out[(2, 1)], out[(2, 2)] = h2, v2, q
+    out[(1, 2)], out[(2, 1)] = h2, v2
+    out[(2, 2)] = h2[:, :-1, :] + h2[:, 1:, :]
     out[(1, 4)] = h2[:, :, :-2] + h2[:, :, 2:]
     out[(4, 1)] = v2[:, :-2, :] + v2[:, 2:, :]
-    q2 = q[:, :, :-2] + q[:, :, 2:]
-    out[(4, 4)] = q2[:, :-2, :] + q2[:, 2:, :]
     res = []
-    for shape in SHAPES:
+    for shape, g in zip(SHAPES, _GAIN, strict=True):
         a = out[shape]
         if a.shape[1] == 0 or a.shape[2] == 0:
-            a = np.zeros((z.shape[0], 1, 1), np.float32)
+            a = np.zeros((n, 1, 1), np.float32)
         elif shape != (1, 1):
-            a = a * np.float32(1.0 / np.sqrt(shape[0] * shape[1]))
+            a *= g
         res.append(a)
     return res
+
+
+class Scratch:
+    """Reusable float32 work buffers by name (fresh large arrays cost page faults on every chunk)."""
+
+    def __init__(self) -> None:
+        self._bufs: dict[str, np.ndarray] = {}
+
+    def get(self, name: str, rows: int, cols: int) -> np.ndarray:
+        b = self._bufs.get(name)
+        if b is None or b.shape[0] < rows or b.shape[1] < cols:
+            b = np.empty((max(rows, 0 if b is None else b.shape[0]),
+                          max(cols, 0 if b is None else b.shape[1])), np.float32)
+            self._bufs[name] = b
+        return b[:rows, :cols]
+
+
+def pooled_absmax(z: np.ndarray, scratch: Scratch | None = None) -> np.ndarray:
+    """Per row of z (n, gy, gx): the largest |value| over every pooled shape and position (the same
+    boxes and gains as pooled()). Every add runs over the whole chunk as one flat array (boxes that
+    would wrap across a grid row or into the next frame are zeroed); shapes with the same gain are
+    merged elementwise so each frame needs three reductions, not one per shape."""
+    n, gy, gx = z.shape
+    t = gy * gx
+    size = n * t
+    ws = scratch or Scratch()
+    flat = np.ascontiguousarray(z).reshape(size)
+
+    def shifted(name: str, src: np.ndarray, step: int) -> np.ndarray:
+        out = ws.get(name, 1, size)[0]
+        if step < size:
+            np.add(src[: size - step], src[step:], out=out[: size - step])
+        out[max(size - step, 0):] = 0
+        return out
+
+    h2 = shifted("h2", flat, 1)
+    h2.reshape(n * gy, gx)[:, gx - 1] = 0
+    v2 = shifted("v2", flat, gx)
+    v2.reshape(n, gy, gx)[:, gy - 1] = 0
+    q = shifted("q", h2, gx)
+    q.reshape(n, gy, gx)[:, gy - 1] = 0
+    h4 = shifted("h4", h2, 2)
+    h4.reshape(n * gy, gx)[:, max(gx - 3, 0):] = 0
+    v4 = shifted("v4", v2, 2 * gx)
+    v4.reshape(n, gy, gx)[:, max(gy - 3, 0):] = 0
+    single = np.abs(flat, out=ws.get("abs1", 1, size)[0])
+    pairs = np.maximum(np.abs(h2, out=h2), np.abs(v2, out=v2), out=h2)
+    quads = np.maximum(np.abs(q, out=q), np.abs(h4, out=h4), out=q)
+    np.maximum(quads, np.abs(v4, out=v4), out=quads)
+    best = single.reshape(n, t).max(axis=1)
+    np.maximum(best, pairs.reshape(n, t).max(axis=1) * np.float32(1 / np.sqrt(2)), out=best)
+    np.maximum(best, quads.reshape(n, t).max(axis=1) * np.float32(0.5), out=best)
+    return best
+
+
+def best_boxes(z: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """For each row of z (n, gy, gx): (shape index, row, col, signed value) of the strongest pooled
+    box, vectorised over rows."""
+    n = z.shape[0]
+    best_v = np.zeros(n, np.float32)
+    best_s = np.zeros(n, np.int64)
+    best_r = np.zeros(n, np.int64)
+    best_c = np.zeros(n, np.int64)
+    rows = np.arange(n)
+    for s, a in enumerate(pooled(z)):
+        flat = a.reshape(n, -1)
+        i = np.argmax(np.abs(flat), axis=1)
+        v = flat[rows, i]
+        better = np.abs(v) > np.abs(best_v)
+        best_v[better] = v[better]
+        best_s[better] = s
+        best_r[better], best_c[better] = np.divmod(i[better], a.shape[2])
+    return best_s, best_r, best_c, best_v
 
 
 def best_box(z: np.ndarray) -> tuple[int, int, int, float]:
     """For one frame's tile z map (gy, gx): (shape index, row, col, signed value) of the strongest
     pooled box."""
-    best = (0, 0, 0, 0.0)
-    for s, a in enumerate(pooled(z[None])):
-        a = a[0]
-        i = int(np.argmax(np.abs(a)))
-        r, c = divmod(i, a.shape[1])
-        v = float(a[r, c])
-        if abs(v) > abs(best[3]):
-            best = (s, r, c, v)
-    return best
+    s, r, c, v = best_boxes(np.asarray(z, np.float32)[None])
+    return int(s[0]), int(r[0]), int(c[0]), float(v[0])
 
 
 def centroid(z: np.ndarray, shape_index: int, r: int, c: int, sign: float,
@@ -82,10 +162,10 @@ def centroid(z: np.ndarray, shape_index: int, r: int, c: int, sign: float,
     gy, gx = z.shape
     r0, r1 = max(r - 1, 0), min(r + hgt + 1, gy)
     c0, c1 = max(c - 1, 0), min(c + wid + 1, gx)
-    wts = np.clip(np.sign(sign) * z[r0:r1, c0:c1], 0, None) ** 2
-    if wts.sum() <= 0:
+    wts = np.clip(z[r0:r1, c0:c1] if sign > 0 else -z[r0:r1, c0:c1], 0, None) ** 2
+    tot = float(wts.sum())
+    if tot <= 0:
         return (c + wid / 2) * tile, (r + hgt / 2) * tile
-    yy, xx = np.mgrid[r0:r1, c0:c1]
-    cy = float((wts * (yy + 0.5)).sum() / wts.sum()) * tile
-    cx = float((wts * (xx + 0.5)).sum() / wts.sum()) * tile
+    cy = float(wts.sum(axis=1) @ (np.arange(r0, r1) + 0.5)) / tot * tile
+    cx = float(wts.sum(axis=0) @ (np.arange(c0, c1) + 0.5)) / tot * tile
     return cx, cy

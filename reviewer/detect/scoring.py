@@ -1,5 +1,6 @@
 """Scoring of one chunk of normalised tile sums: windowed step statistics per tile, pooled locally,
-calibrated to a single-test z per frame."""
+calibrated to a single-test z per frame; located peaks get a position, an onset frame and, for
+long-window-only detections, a check that they look like a step and not a drifting edge."""
 
 from __future__ import annotations
 
@@ -8,9 +9,14 @@ from functools import lru_cache
 
 import numpy as np
 
-from reviewer.detect.reduce import SHAPES, best_box, centroid, pooled
+from reviewer.detect.reduce import SHAPES, Scratch, best_boxes, centroid, pooled_absmax
 from reviewer.detect.statistics import effective_tests, raw_level, step_weight
 
+DECIMATE_MIN_W = 8  # windows this long are evaluated every 2nd frame (their peaks are ≥ w wide)
+TREND_SPAN = 256  # frames over which a tile's trend is taken as constant
+TREND_MIN_W = 8  # shorter windows skip the per-tile trend removal (a trend adds ∝ w^1.5 to z)
+TREND_Z = 3.0  # a box drifts when a w-block difference beside the split exceeds this many sd
+STEP_LIKE_SD = 1.5  # long-window-only detections must be this close to a step's short-window echo
 LOCATE_Z = 2.5  # frames whose calibrated z exceeds this get a location (cheap: only those frames)
 
 
@@ -24,105 +30,287 @@ class ChunkScores:
     y: np.ndarray
     frac: np.ndarray      # (m,) share of tiles with |z| > 3 at the shortest window
     k_eff: float          # effective number of independent tests per frame (from the median)
+    shift: np.ndarray     # (m,) int16 onset − frame for located frames (maximum-likelihood split)
 
 
-def noise_sd(xn: np.ndarray) -> np.ndarray:
-    """Per-tile sd of one frame's tile sum. Shot noise (var = gain × mean) with the gain measured as
-    the median over tiles of var/mean, where var comes from 1.4826·MAD of frame-to-frame differences
-    / √2; data with non-positive means fall back to one common variance."""
-    d = np.diff(xn[:257], axis=0)
-    var = (1.4826 * np.median(np.abs(d), axis=0)) ** 2 / 2.0
+def noise_gain(xn: np.ndarray) -> float | None:
+    """Shot-noise gain (variance per unit mean of a tile sum) as the median over tiles of var/mean,
+    var from 1.4826·MAD of frame-to-frame differences / √2; None when some mean is not positive."""
+    head = xn[:257].reshape(min(len(xn), 257), -1)
+    mu = head.mean(axis=0)
+    if len(head) < 2 or not np.all(mu > 0):
+        return None
+    var = (1.4826 * _col_median(np.abs(np.diff(head, axis=0)))) ** 2 / 2.0
+    return float(np.median(var / mu))
+
+
+def noise_sd(xn: np.ndarray, gain: float | None = None) -> np.ndarray:
+    """Per-tile sd of one frame's tile sum: shot noise, var = gain × mean (mean over the rows of xn,
+    gain from noise_gain unless given); data with non-positive means fall back to one common
+    variance."""
+    g = noise_gain(xn) if gain is None else gain
     mu = xn.mean(axis=0)
-    if np.all(mu > 0):
-        gain = float(np.median(var / mu))
-        sd = np.sqrt(np.maximum(gain * mu, 1e-12))
-    else:
+    if g is not None and np.all(mu > 0):
+        sd = np.sqrt(np.maximum(g * mu, 1e-12))
+    elif len(xn) >= 2:
+        d = np.diff(xn[:257], axis=0)
+        var = (1.4826 * np.median(np.abs(d), axis=0)) ** 2 / 2.0
         sd = np.full(mu.shape, np.sqrt(max(float(np.median(var)), 1e-12)))
+    else:
+        sd = np.ones(mu.shape)
     return sd.astype(np.float32)
 
 
-def step_maps(xn: np.ndarray, lo: int, hi: int, w: int, outer: int,
-              inv_sd: np.ndarray) -> np.ndarray:
-    """z of the trend-free step statistic (statistics.step_statistic) at buffer rows lo..hi-1 (rows
-    whose windows do not fit are 0). xn: (L, gy, gx) normalised tile sums."""
-    n, big = xn.shape[0], outer * w
-    o = w + big
-    out = np.zeros((hi - lo, *xn.shape[1:]), np.float32)
-    a, b = max(lo, o), min(hi, n - o + 1)
-    if b <= a:
-        return out
-    seg = xn[a - o: b + o - 1]  # rows needed: t - o .. t + o - 1
+def _cumsum(xn: np.ndarray, a: int, b: int) -> np.ndarray:
+    """Cumulative sum (leading zero row) of rows a..b-1 of xn, centred per tile (float32 keeps
+    the differences exact enough once the mean is gone)."""
+    seg = xn[a:b]
     cum = np.empty((len(seg) + 1, *seg.shape[1:]), np.float32)
     cum[0] = 0
-    np.cumsum(seg - seg.mean(axis=0), axis=0, out=cum[1:])
-    sw = cum[w:] - cum[:-w]      # sw[i] = sum of seg[i:i+w]
-    c, factor = step_weight(w, outer)
-    m = b - a  # output row j <-> buffer row a + j <-> seg row o + j
-    t = (sw[o: o + m] - sw[o - w: o - w + m]) * np.float32(1.0 / w)
+    np.cumsum(seg - seg[: min(len(seg), 64)].mean(axis=0), axis=0, out=cum[1:])
+    return cum
+
+
+def _step(cum: np.ndarray, c0: int, a: int, b: int, w: int, outer: int) -> np.ndarray:
+    """Unscaled step statistic (A − B, or the trend-free form of statistics.step_statistic) at
+    buffer rows a..b-1; cum row k is the sum of buffer rows c0..c0+k-1."""
+    m, j = b - a, a - c0
+    t = cum[j + w: j + w + m] + cum[j - w: j - w + m]
+    t -= cum[j: j + m]
+    t -= cum[j: j + m]
+    t *= np.float32(1.0 / w)
+    big = outer * w
     if big:
-        sl = cum[big:] - cum[:-big]
-        t -= (sl[o + w: o + w + m] - sl[:m]) * np.float32(c / big)
-    elif m >= 64:
-        # slow trend (drift moving an edge through a tile): the tile's typical A − B over the chunk;
-        # the median ignores the few frames near real steps
-        t -= np.median(t[:: max(1, w // 2)], axis=0)
-    out[a - lo: b - lo] = t * (inv_sd * np.float32(1.0 / factor))
+        c, _ = step_weight(w, outer)
+        t -= (cum[j + w + big: j + w + big + m] - cum[j + w: j + w + m]
+              - cum[j - w: j - w + m] + cum[j - w - big: j - w - big + m]) * np.float32(c / big)
+    return t
+
+
+def _col_median(a: np.ndarray) -> np.ndarray:
+    """Median of each column of a (rows, T) (the upper one for an even count; partition on a
+    transposed copy is several times faster than np.median along axis 0)."""
+    r = np.ascontiguousarray(a.T)
+    k = r.shape[1] // 2
+    return np.partition(r, k, axis=1)[:, k]
+
+
+def _window_sums(seg: np.ndarray, windows: tuple[int, ...], ws: Scratch) -> dict[int, np.ndarray]:
+    """Sums of w consecutive rows of seg (L, T) for every w in windows (out[w][i] = Σ seg[i:i+w]),
+    built from power-of-two sums by doubling: a few adds of contiguous rows, no cumulative sum."""
+    n, t = seg.shape
+    pw = {1: seg}
+    p = 1
+    while 2 * p <= max(windows) and 2 * p <= n:
+        prev = pw[p]
+        pw[2 * p] = np.add(prev[:-p], prev[p:], out=ws.get(f"p{2 * p}", len(prev) - p, t))
+        p *= 2
+    out = {}
+    for w in windows:
+        if w in pw:
+            out[w] = pw[w]
+            continue
+        if w > n:
+            continue
+        parts = [q for q in sorted(pw, reverse=True) if w & q]
+        acc = ws.get(f"s{w}", n - w + 1, t)
+        np.add(pw[parts[0]][: n - w + 1], pw[parts[1]][parts[0]: parts[0] + n - w + 1], out=acc)
+        off = parts[0] + parts[1]
+        for q in parts[2:]:
+            acc += pw[q][off: off + n - w + 1]
+            off += q
+        out[w] = acc
     return out
 
 
-def _z_maps(xn: np.ndarray, lo: int, hi: int, windows: tuple[int, ...], outer: int):
-    """Yield (window index, z maps) with the per-window robust scale applied."""
-    inv_sd = 1.0 / noise_sd(xn)
+def _maps(xn, lo, hi, windows, outer, inv_sd, robust=True, ws: Scratch | None = None):
+    """Yield (window index, z maps (hi − lo, gy, gx)) for every window."""
+    n, gy, gx = xn.shape
+    ws = ws or Scratch()
+    m = hi - lo
+    inv = np.asarray(inv_sd, np.float32).reshape(-1)
+    if outer:
+        reach = (1 + outer) * max(windows)
+        c0, c1 = max(0, lo - reach), min(n, hi + reach)
+        cum = _cumsum(xn, c0, c1)
+    else:
+        big_w = max(windows)
+        c0, c1 = max(0, lo - big_w), min(n, hi + big_w - 1)
+        sums = _window_sums(xn[c0:c1].reshape(c1 - c0, -1), tuple(windows), ws)
     for k, w in enumerate(windows):
-        z = step_maps(xn, lo, hi, w, outer, inv_sd)
-        sub = z[::4].ravel()
-        sub = sub[sub != 0]
-        scale = 1.4826 * float(np.median(np.abs(sub))) if sub.size > 100 else 1.0
-        if scale > 0:
-            z *= np.float32(1.0 / scale)
-        yield k, z
+        o = (1 + outer) * w
+        step = 2 if w >= DECIMATE_MIN_W and not outer else 1
+        rows = -(-m // step)
+        z = ws.get(f"z{k}", rows, gy * gx)
+        a, b = max(lo, o), min(hi, n - o + 1)
+        j0 = min(rows, -(-max(a - lo, 0) // step))
+        j1 = max(j0, min(rows, -(-max(b - lo, 0) // step)))
+        z[:j0] = 0
+        z[j1:] = 0
+        if j1 > j0:
+            t = z[j0:j1]
+            if outer:
+                t[...] = _step(cum, c0, a, b, w, outer).reshape(b - a, -1)
+            else:
+                sw = sums[w]
+                r0 = lo + step * j0 - c0
+                r1 = r0 + step * (j1 - j0)
+                np.subtract(sw[r0:r1:step], sw[r0 - w: r1 - w: step], out=t)
+                if step * (j1 - j0) >= 64 and w >= TREND_MIN_W:
+                    # slow trend (drift moving an edge through a tile): the tile's typical A − B
+                    # over TREND_SPAN frames; the median ignores the few frames near real steps
+                    parts = max(1, step * (j1 - j0) // TREND_SPAN)
+                    edges = np.linspace(0, j1 - j0, parts + 1).astype(int)
+                    for e0, e1 in zip(edges[:-1], edges[1:], strict=True):
+                        t[e0:e1] -= _col_median(t[e0:e1: max(1, (e1 - e0) // 64)])
+            gain = inv * np.float32(1.0 / (w * step_weight(w, outer)[1]) if not outer
+                                    else 1.0 / step_weight(w, outer)[1])
+            if robust and t.size > 100:  # robust scale of the z values, from a subsample
+                sub = np.abs(t[:: max(1, (j1 - j0) // 32)] * gain).ravel()
+                scale = 1.4826 * float(np.partition(sub, sub.size // 2)[sub.size // 2])
+                if scale > 0:
+                    gain = gain * np.float32(1.0 / scale)
+            t *= gain
+        yield k, z.reshape(rows, gy, gx), step
 
 
-def _best(z: np.ndarray) -> np.ndarray:
-    best = np.zeros(len(z), np.float32)
-    for a in pooled(z):
-        np.maximum(best, a.max(axis=(1, 2)), out=best)
-        np.maximum(best, -a.min(axis=(1, 2)), out=best)
-    return best
+def _expand(v: np.ndarray, step: int, m: int) -> np.ndarray:
+    """Per-frame series from values at every step-th frame: those frames keep theirs, the frames
+    between take the mean of their neighbours (a long window's statistic changes little in a
+    frame; never above both, so peaks stay on evaluated frames; onset_shift places the event)."""
+    if step == 1:
+        return v[:m]
+    pm = 0.5 * (v + np.append(v[1:], v[-1:]))
+    out = np.repeat(pm, step)[:m]
+    out[0::step] = v[: len(out[0::step])]
+    return out
 
 
 def _maxima(xn, lo, hi, windows, outer) -> np.ndarray:
-    return np.max([_best(z) for _, z in _z_maps(xn, lo, hi, windows, outer)], axis=0)
+    inv_sd = 1.0 / noise_sd(xn)
+    ws = Scratch()
+    m = hi - lo
+    return np.max([_expand(pooled_absmax(z, ws), step, m)
+                   for _, z, step in _maps(xn, lo, hi, windows, outer, inv_sd, ws=ws)], axis=0)
 
 
 def score_chunk(xn: np.ndarray, lo: int, hi: int, windows: tuple[int, ...], tile: int,
-                outer: int = 4) -> ChunkScores:
+                outer: int = 0, inv_sd: np.ndarray | None = None,
+                scratch: Scratch | None = None) -> ChunkScores:
     """Scores for buffer rows lo..hi-1 of xn (L, gy, gx), which must hold (1 + outer)·max(w)
     rows of context on each side where the movie has them."""
     m = hi - lo
     per_window = np.zeros((m, len(windows)), np.float32)
     maps = []
     frac = np.zeros(m, np.float32)
-    for k, z in _z_maps(xn, lo, hi, windows, outer):
+    if inv_sd is None:
+        inv_sd = 1.0 / noise_sd(xn)
+    ws = scratch or Scratch()
+    for k, z, step in _maps(xn, lo, hi, windows, outer, inv_sd, ws=ws):
         if k == 0:
-            frac = (np.abs(z) > 3.0).mean(axis=(1, 2)).astype(np.float32)
-        per_window[:, k] = _best(z)
-        maps.append(z)
+            big = np.abs(z.reshape(len(z), -1), out=ws.get("abs", len(z), z[0].size)) > 3.0
+            frac = np.count_nonzero(big, axis=1).astype(np.float32)
+            frac = np.repeat(frac / np.float32(z[0].size), step)[:m]
+        per_window[:, k] = _expand(pooled_absmax(z, ws), step, m)
+        maps.append((z, step))
     best_window = np.argmax(per_window, axis=1).astype(np.int8)
     smax = per_window.max(axis=1)
     sign = np.zeros(m, np.int8)
+    shift = np.zeros(m, np.int16)
     x = np.full(m, np.nan, np.float32)
     y = np.full(m, np.nan, np.float32)
     k_eff = null_tests(xn.shape[1], xn.shape[2], tuple(windows), outer)
-    for i in np.flatnonzero(smax > raw_level(LOCATE_Z, k_eff)):
-        z = maps[best_window[i]][i]
-        s, r, c, v = best_box(z)
-        sign[i] = 1 if v > 0 else -1
-        x[i], y[i] = centroid(z, s, r, c, v, tile)
-    return ChunkScores(smax, per_window, best_window, sign, x, y, frac, k_eff)
+    # locate the frames above the level that are local peaks of some window's series (candidates
+    # are such peaks); the location comes from the strongest window peaking there
+    level = raw_level(LOCATE_Z, k_eff)
+    loc_z = np.zeros(m, np.float32)
+    loc_k = np.full(m, -1, np.int64)
+    for k in range(len(windows)):
+        pw = per_window[:, k]
+        peak = pw > np.maximum(level, loc_z)
+        peak[1:] &= pw[1:] >= pw[:-1]
+        peak[:-1] &= pw[:-1] >= pw[1:]
+        loc_z[peak], loc_k[peak] = pw[peak], k
+    idx = np.flatnonzero(loc_k >= 0)
+    if len(idx):
+        best_window[idx] = loc_k[idx]
+        z = np.stack([maps[loc_k[i]][0][i // maps[loc_k[i]][1]] for i in idx])
+        shp, rr, cc, vv = best_boxes(z)
+        sign[idx] = np.where(vv > 0, 1, -1)
+        for j, i in enumerate(idx):
+            sh, r, c, v = int(shp[j]), int(rr[j]), int(cc[j]), float(vv[j])
+            x[i], y[i] = centroid(z[j], sh, r, c, v, tile)
+            shift[i] = onset_shift(xn, lo + i, SHAPES[sh], r, c, 1 if v > 0 else -1,
+                                   windows[loc_k[i]])
+            k = int(loc_k[i])
+            if k == len(windows) - 1 and k > 0 and windows[k] >= TREND_MIN_W:
+                zs, st = maps[k - 1]
+                near = [box_value(zs[j], sh, r, c)
+                        for j in range(max(i - 2, 0) // st, min(i + 2, m - 1) // st + 1)]
+                if (not step_like(v, near, windows[k - 1], windows[k])
+                        and trending(xn, lo + i, SHAPES[sh], r, c, v, windows[k])):
+                    per_window[i, k] = 0.0  # a trend's signature, not a step's
+        smax = per_window.max(axis=1)
+    return ChunkScores(smax, per_window, best_window, sign, x, y, frac, k_eff, shift)
 
 
-__all__ = ["SHAPES", "ChunkScores", "noise_sd", "score_chunk", "step_maps"]
+def box_value(z: np.ndarray, shape_index: int, r: int, c: int) -> float:
+    """The pooled (normalised) value of one box of a tile z map (gy, gx)."""
+    h, w = SHAPES[shape_index]
+    return float(z[r: r + h, c: c + w].sum()) / np.sqrt(h * w)
+
+
+def step_like(z_long: float, z_short: list[float], w_short: int, w_long: int) -> bool:
+    """Whether a long window's step z on one box is backed by the next shorter window on the same
+    box as a step would be. For a step, both windows straddle the same split: z_short given z_long
+    is normal with mean ρ·z_long and variance 1 − ρ², ρ = √(w_short / w_long). A slow trend gives
+    z ∝ w^1.5 instead, far less at the shorter window. The best of the few frames around the peak
+    is used (a weak step's peak may sit a frame or two off); fails when it lies more than
+    STEP_LIKE_SD sd below the step's expectation."""
+    rho = np.sqrt(w_short / w_long)
+    best = max((np.sign(z_long) * v for v in z_short), default=0.0)
+    return best - rho * abs(z_long) >= -STEP_LIKE_SD * np.sqrt(1.0 - rho * rho)
+
+
+def trending(xn: np.ndarray, row: int, shape: tuple[int, int], r: int, c: int, z: float,
+             w: int) -> bool:
+    """Whether one box's summed tiles drift on either side of a long-window step: with blocks of w
+    frames P2 P1 | N1 N2 around the split, P1 − P2 or N2 − N1 (free of the step itself) exceeds
+    TREND_Z times the sd of a w-block difference (taken from the box's own step z). Unknown (near
+    the movie's ends) counts as trending."""
+    a, b = row - 2 * w, row + 2 * w
+    if a < 0 or b > len(xn):
+        return True
+    ser = xn[a:b, r: r + shape[0], c: c + shape[1]].reshape(4, w, -1).sum(axis=(1, 2),
+                                                                         dtype=np.float64) / w
+    p2, p1, n1, n2 = ser
+    plain = n1 - p1
+    if plain * z <= 0:
+        return True
+    sd = abs(plain / z)  # sd of a difference of two w-frame means, from the box's own z
+    return max(abs(p1 - p2), abs(n2 - n1)) > TREND_Z * sd
+
+
+def onset_shift(xn: np.ndarray, row: int, shape: tuple[int, int], r: int, c: int, sign: int,
+                w: int) -> int:
+    """Maximum-likelihood frame of a single mean change of the given sign in the summed tiles of
+    one box, searched over rows row − w .. row + w (Gaussian, equal variances: the split k of N
+    samples maximising k(N − k)/N · (mean after − mean before)²); returned relative to row."""
+    a, b = max(row - w, 0), min(row + w + 1, len(xn))
+    if b - a < 2:
+        return 0
+    ser = xn[a:b, r: r + shape[0], c: c + shape[1]].reshape(b - a, -1).sum(axis=1,
+                                                                          dtype=np.float64)
+    n = len(ser)
+    cum = np.cumsum(ser)
+    k = np.arange(1, n)
+    diff = (cum[-1] - cum[:-1]) / (n - k) - cum[:-1] / k
+    stat = k * (n - k) / n * diff * diff
+    stat[sign * diff <= 0] = -1.0
+    return int(a + 1 + int(np.argmax(stat)) - row)
+
+
+__all__ = ["SHAPES", "ChunkScores", "noise_gain", "noise_sd", "onset_shift", "score_chunk"]
 
 
 @lru_cache(maxsize=16)

@@ -23,7 +23,7 @@ class DetectSettings:
     tile: int = 8                # tile side in pixels (frames are reduced to tile sums first)
     windows: tuple[int, ...] = (3, 10, 24)  # before/after window lengths in frames
     outer: int = 0               # trend windows outer × w frames long (0: plain after − before)
-    read_block: int = 32         # frames read at a time
+    read_block: int = 64         # frames read at a time
     chunk: int = 512             # frames scored at a time (bounded memory)
     separation: int = 3          # frames: peaks closer than this are one event
     global_fraction: float = 0.25  # share of tiles changed at once that makes a change global

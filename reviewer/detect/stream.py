@@ -4,7 +4,6 @@ frames a chunk at a time with bounded memory, and keep compact per-frame feature
 from __future__ import annotations
 
 import time
-from collections import deque
 from collections.abc import Callable
 from dataclasses import dataclass, field
 
@@ -12,8 +11,8 @@ import numpy as np
 import pandas as pd
 
 from reviewer.detect.drift import phase_shift
-from reviewer.detect.reduce import bin_block, tiles_from_bins
-from reviewer.detect.scoring import score_chunk
+from reviewer.detect.reduce import Scratch, bin_block
+from reviewer.detect.scoring import noise_gain, noise_sd, score_chunk
 from reviewer.detect.settings import DetectSettings
 from reviewer.detect.statistics import (
     calibrate_max,
@@ -22,6 +21,8 @@ from reviewer.detect.statistics import (
     step_weight,
 )
 from reviewer.errors import BadInput
+
+DRIFT_EVERY = 2048  # frames per drift estimate
 
 
 class ScanCancelled(Exception):
@@ -45,26 +46,32 @@ def _geometry(shape: tuple[int, int], tile: int, path: str) -> tuple[int, int, i
 
 
 class _Scanner:
-    """Carried state between blocks: the last 4·max(w) frames of tile sums and bins, level reference."""
+    """Carried state between blocks: a preallocated buffer of normalised tile sums (the frames being
+    scored plus `ctx` frames of context each side), the beam-level reference, the noise gain."""
 
     def __init__(self, n: int, shape: tuple[int, int], s: DetectSettings, path: str) -> None:
         self.s = s
         self.n = n
         self.tile, self.gy, self.gx = _geometry(shape, s.tile, path)
-        self.ctx = (1 + s.outer) * max(s.windows)
-        self.xn = np.empty((0, self.gy, self.gx), np.float32)
-        self.bins = np.empty((0, 2 * self.gy, 2 * self.gx), np.float32)
+        # context rows kept each side of the frames being scored: the windows' reach, and more
+        # than the drift check's 2·w (scoring.trending)
+        self.ctx = max(1 + s.outer, 3) * max(s.windows)
+        cap = s.chunk + 3 * self.ctx + s.read_block
+        self.buf = np.empty((cap, self.gy, self.gx), np.float32)
+        self.fill = 0          # rows of buf in use
         self.base = 0          # absolute index of buffer row 0
         self.scored = 0        # frames scored so far
-        self.recent: deque[float] = deque(maxlen=64)
+        self.recent = np.zeros(64)
+        self.n_recent = 0
         self.ref0 = 0.0
-        self.last_good: np.ndarray | None = None
-        self.tile_ref: np.ndarray | None = None
-        self.pending: list[tuple[np.ndarray, np.ndarray]] = []
-        self.n_pending = 0
+        self.ref_total = 0.0
+        self.gain: float | None = None
+        self.scratch = Scratch()
         self.k_medians: list[float] = []
         self.prev_mean: np.ndarray | None = None
         self.drift = np.zeros(2)
+        self.mean_sum = np.zeros((self.gy, self.gx))
+        self.mean_rows = 0
         f32 = np.float32
         self.f = {name: np.zeros(n, f32) for name in ("smax", "x", "y", "frac", "level", "jump",
                                                       "drift_y", "drift_x")}
@@ -73,83 +80,102 @@ class _Scanner:
         self.f["zw"] = np.zeros((n, len(s.windows)), f32)
         self.f["best_window"] = np.zeros(n, np.int8)
         self.f["sign"] = np.zeros(n, np.int8)
+        self.f["shift"] = np.zeros(n, np.int16)  # onset − frame where located
         self.f["blank"] = np.zeros(n, np.uint8)
 
     def feed(self, start: int, block: np.ndarray) -> None:
-        bins = bin_block(block, self.tile // 2, 2 * self.gy, 2 * self.gx)
-        tiles = tiles_from_bins(bins)
-        if self.tile_ref is None:
-            self.tile_ref = np.maximum(np.median(tiles, axis=0), 1e-6)
-        # beam level: median over tiles of the ratio to a reference image (a local change, even a
-        # large one, moves the median little; a beam change moves every tile)
-        level = np.median((tiles / self.tile_ref).reshape(len(tiles), -1), axis=1)
-        if not self.recent:
-            self.recent.extend(np.sort(level)[len(level) // 4: 3 * len(level) // 4 + 1])
-            self.ref0 = float(np.median(self.recent)) or 1.0
-        ref = float(np.median(self.recent)) or self.ref0
+        k = len(block)
+        if self.fill + k > len(self.buf):
+            self.buf = np.concatenate([self.buf, np.empty_like(self.buf[: k])])
+        xn = self.buf[self.fill: self.fill + k]
+        xn[...] = bin_block(block, self.tile, self.gy, self.gx)
+        # beam level: total over the field against the first frames' (a local change of a few
+        # hundred px moves the total little; a beam change moves every tile)
+        total = xn.reshape(k, -1).sum(axis=1, dtype=np.float64)
+        if not self.ref_total:
+            self.ref_total = float(np.median(total)) or 1.0
+            lv = total / self.ref_total
+            self._remember(np.sort(lv)[k // 4: 3 * k // 4 + 1])
+            self.ref0 = self._recent_median() or 1.0
+        level = total / self.ref_total
+        ref = self._recent_median() or self.ref0
         good = (np.abs(level / ref - 1.0) <= self.s.blank_level) & (level != 0)
-        scale = np.where(good, self.ref0 / np.where(level != 0, level, 1.0), 1.0)
-        xn = tiles * scale.astype(np.float32)[:, None, None]
-        for i in np.flatnonzero(~good):  # blanked frames: hold the last good frame
-            self.f["blank"][start + i] = 1
-            prev = xn[i - 1] if i > 0 else self.last_good
-            if prev is not None:
-                xn[i] = prev
-        self.last_good = xn[-1].copy()
-        self.recent.extend(level[good][::4].tolist())
-        self.f["level"][start: start + len(level)] = level / self.ref0
-        self.pending.append((xn, bins))
-        self.n_pending += len(xn)
-        end = self.base + len(self.xn) + self.n_pending
+        if good.all():
+            xn *= (self.ref0 / level).astype(np.float32)[:, None, None]
+        else:
+            scale = np.where(good, self.ref0 / np.where(level != 0, level, 1.0), 1.0)
+            xn *= scale.astype(np.float32)[:, None, None]
+            for i in np.flatnonzero(~good):  # blanked frames: hold the last good frame
+                self.f["blank"][start + i] = 1
+                if self.fill + i > 0:
+                    xn[i] = self.buf[self.fill + i - 1]
+        self.fill += k
+        self._remember(level[good][::4])
+        self.f["level"][start: start + k] = level / self.ref0
+        end = self.base + self.fill
         if end - self.scored >= self.s.chunk + self.ctx:
-            self._gather()
             self._score(end - self.ctx)
 
-    def _gather(self) -> None:
-        """Append the pending blocks to the buffers (once per chunk, not once per block)."""
-        if self.pending:
-            self.xn = np.concatenate([self.xn] + [p[0] for p in self.pending])
-            self.bins = np.concatenate([self.bins] + [p[1] for p in self.pending])
-            self.pending, self.n_pending = [], 0
+    def _remember(self, levels: np.ndarray) -> None:
+        """Keep the last 64 good frames' levels (a ring) for the blank test's reference."""
+        for v in levels[-len(self.recent):]:
+            self.recent[self.n_recent % len(self.recent)] = v
+            self.n_recent += 1
+
+    def _recent_median(self) -> float:
+        r = self.recent[: min(self.n_recent, len(self.recent))]
+        if not len(r):
+            return 0.0
+        return float(np.partition(r, len(r) // 2)[len(r) // 2])
 
     def finish(self) -> None:
-        self._gather()
-        end = self.base + len(self.xn)
+        end = self.base + self.fill
         if end > self.scored:
             self._score(end)
 
     def _score(self, upto: int) -> None:
+        xn = self.buf[: self.fill]
         lo, hi = self.scored - self.base, upto - self.base
         w0 = self.s.windows[0]
-        cs = score_chunk(self.xn, lo, hi, self.s.windows, self.tile, self.s.outer)
+        if self.gain is None:  # shot-noise gain measured once, on the first frames
+            self.gain = noise_gain(xn)
+        inv_sd = 1.0 / noise_sd(xn, self.gain)  # the means follow the scene
+        cs = score_chunk(xn, lo, hi, self.s.windows, self.tile, self.s.outer, inv_sd,
+                         self.scratch)
         sl = slice(self.scored, upto)
         f = self.f
         f["smax"][sl], f["zw"][sl], f["best_window"][sl] = cs.smax, cs.per_window, cs.best_window
         f["sign"][sl], f["x"][sl], f["y"][sl], f["frac"][sl] = cs.sign, cs.x, cs.y, cs.frac
+        f["shift"][sl] = cs.shift
         if hi - lo >= 32:
             self.k_medians.append(cs.k_eff)
         # whole-field shift where many tiles changed at once (stage jump test)
         half = 0.5 * self.s.global_fraction
-        for j in np.flatnonzero(cs.frac >= half):
+        for j in np.flatnonzero(cs.frac >= half)[:64]:
             r = lo + j
-            if r - w0 < 0 or r + w0 > len(self.bins):
+            if r - w0 < 0 or r + w0 > len(xn):
                 continue
-            dy, dx, _ = phase_shift(self.bins[r - w0: r].mean(0), self.bins[r: r + w0].mean(0),
-                                    upsample=10)
-            f["jump"][self.scored + j] = np.hypot(dy, dx) * (self.tile // 2)
-        # slow drift: shift of this chunk's mean image against the previous chunk's
-        self.tile_ref = np.maximum(self.xn[lo:hi].mean(axis=0) / self.ref0, 1e-6)
-        mean = self.bins[lo:hi].mean(axis=0)
-        if self.prev_mean is not None:
-            dy, dx, _ = phase_shift(self.prev_mean, mean, upsample=20)
-            self.drift += np.array([dy, dx]) * (self.tile // 2)
-        self.prev_mean = mean
+            dy, dx, _ = phase_shift(xn[r - w0: r].mean(0), xn[r: r + w0].mean(0), upsample=10)
+            f["jump"][self.scored + j] = np.hypot(dy, dx) * self.tile
+        # slow drift (a feature for the viewer, not used for scoring): shift of the mean image of
+        # the last DRIFT_EVERY frames or more against the previous one's
+        self.mean_sum += xn[lo:hi].sum(axis=0, dtype=np.float64)
+        self.mean_rows += hi - lo
+        if self.mean_rows >= DRIFT_EVERY or upto >= self.n:
+            mean = self.mean_sum / max(self.mean_rows, 1)
+            if self.prev_mean is not None:
+                dy, dx, _ = phase_shift(self.prev_mean, mean, upsample=20)
+                self.drift += np.array([dy, dx]) * self.tile
+            self.prev_mean = mean
+            self.mean_sum[...] = 0
+            self.mean_rows = 0
         f["drift_y"][sl], f["drift_x"][sl] = self.drift
         self.scored = upto
-        keep = max(0, len(self.xn) - 2 * self.ctx)
-        self.xn, self.bins = self.xn[keep:].copy(), self.bins[keep:].copy()
-        self.base += keep
-
+        keep = max(0, self.fill - 2 * self.ctx)
+        if keep:
+            self.buf[: self.fill - keep] = self.buf[keep: self.fill]
+            self.fill -= keep
+            self.base += keep
     def features(self) -> tuple[dict[str, np.ndarray], dict]:
         f = self.f
         k_eff = float(np.median(self.k_medians)) if self.k_medians else 1.0
