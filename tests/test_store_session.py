@@ -339,3 +339,15 @@ def test_reject_kind_is_one_undoable_action_and_spares_decided_ones(movie):
                                             "candidate", "candidate"]
     assert s.reject_kind("nothing-of-this-kind") == 0
     s.close()
+
+
+def test_detector_settings_recorded_after_opening_survive_reopen(movie):
+    facts = {"frames": 100, "fps": FPS}  # a session opened before the scan: no detector yet
+    s = open_session(movie, meta=facts)
+    assert s.meta.get("detector") is None
+    settings = {"sensitivity": 1.5, "windows": [3, 10, 24]}
+    s.update_meta(detector=settings)
+    s.close()
+    again = open_session(movie, meta=facts)
+    assert again.meta["detector"] == settings
+    again.close()

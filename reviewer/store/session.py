@@ -96,6 +96,13 @@ class Session(ReviewState):
         s._retime()
         return s
 
+    def update_meta(self, **values) -> None:
+        """Record movie facts or detector settings (keys of store.meta.KEYS) in meta.json, written
+        atomically; a read-only session only updates its memory."""
+        self.meta, self.times_s = merge_meta(self.meta, self.times_s, values, self.meta.get("movie"),
+                                             self.meta.get("fingerprint", ""),
+                                             None if self.readonly else self.folder)
+
     def _replay(self) -> int | None:
         snap, notes = read_snapshot(self.folder)
         self.notices += notes

@@ -24,7 +24,7 @@ from reviewer.tui.scanning import ScanMixin
 from reviewer.tui.status import StatusLine
 
 MIN_SIZE = (80, 24)
-CONTEXT_FRAMES = 4  # frames averaged before / after for the what-changed and average views
+CONTEXT_FRAMES = 12  # frames averaged before / after for the what-changed and average views
 POSITION_SAVE_S = 2.0  # the position is journaled this long after the cursor stops
 
 

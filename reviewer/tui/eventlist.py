@@ -20,7 +20,7 @@ from textual.scroll_view import ScrollView
 from textual.strip import Strip
 
 # (title, width) of the fixed-width columns; the label takes the rest
-COLUMNS = (("frame", 8), ("time s", 11), ("kind", 10), ("score", 8), ("status", 10))
+COLUMNS = (("frame", 7), ("time s", 10), ("kind", 10), ("score", 6), ("status", 10))
 HEADER_STYLE = Style.parse("bold #c8d3de on #1b2430")
 ROW_STYLE = Style.parse("#c8d3de")
 CURSOR_STYLE = Style.parse("#ffffff on #2f5580")

@@ -114,8 +114,7 @@ class ScanMixin:
         if self.scores is not None:
             self.timeline.set_scores(self.scores, n_frames=self.movie.n_frames)
         if not self._session_closed:
-            # export provenance; on disk from the next open (make_app passes the cached settings)
-            self.session.meta.setdefault("detector", message.result.settings)
+            self.session.update_meta(detector=message.result.settings)  # export provenance
             added = self.session.seed(message.result.candidates)
             self.refresh_events()
             if self.current_id is None:
