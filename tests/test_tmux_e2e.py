@@ -104,5 +104,20 @@ def test_review_in_tmux_then_export(tmp_path):
         assert len(accepted) == 4
         assert sum(r["status"] == "rejected" for r in rows) == 1
         assert max(int(r["frame"]) for r in accepted) > max(reviewed)  # the new one is further on
+
+        # SIGTERM (as a system shutdown sends; SIGHUP comes from a dropped SSH link, same path):
+        # the app saves, releases its lock and exits by itself.
+        third = _open(sock, "three", movie, env)
+        _type(sock, third, "N")
+        _type(sock, third, "r")
+        pid = int(_tmux(sock, "list-panes", "-t", third, "-F", "#{pane_pid}").split()[0])
+        os.kill(pid, signal.SIGTERM)
+        _wait(lambda: third not in _tmux(sock, "list-sessions", "-F", "#{session_name}"),
+              "the app to exit on SIGTERM", timeout=15)
+        folder = tmp_path / "platelets.tif.review"  # the session folder beside the movie
+        assert (folder / "journal.jsonl").exists()
+        assert not (folder / "lock").exists(), "the lock was not released on SIGTERM"
+        rows = _export(movie, full_env, tmp_path / "three.csv")
+        assert sum(r["status"] == "rejected" for r in rows) == 2
     finally:
         subprocess.run(["tmux", "-L", sock, "kill-server"], capture_output=True, timeout=10)
