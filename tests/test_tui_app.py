@@ -255,3 +255,20 @@ async def test_kinetics_panel_and_playback(tmp_path):
         await _press(pilot, "space")
         assert app.frame > 80 and not app.playing
         await app.action_quit()
+
+
+@sync
+async def test_second_session_on_the_same_movie_is_warned(tmp_path):
+    first = _app(tmp_path)  # holds the session lock while it is open
+    movie = _movie(tmp_path)
+    second = ReviewApp(movie, _session(tmp_path, movie), keymap=load_keymap(),
+                       labels=load_labels(), run_scan=False)
+    assert second.session.lock_warning
+    shown: list[str] = []
+    notify = second.notify
+    second.notify = lambda message, **kw: (shown.append(message), notify(message, **kw))[1]
+    async with second.run_test(size=SIZE) as pilot:
+        await pilot.pause()
+        assert second.session.lock_warning in shown
+        await second.action_quit()
+    first.session.close()
