@@ -47,6 +47,19 @@ def test_appear_and_leave_is_one_transient():
     assert np.isnan(row["time_s"])  # no timing known
 
 
+def test_small_particle_seen_for_two_frames_is_one_transient_on_its_first_frame():
+    lam, rng = _flat(n=800)
+    yy, xx = np.mgrid[:48, :48]
+    for t, (cy, cx) in ((400, (20.0, 19.0)), (401, (21.5, 22.0))):  # a 2.5 px disc moving by
+        lam[t][(yy - cy) ** 2 + (xx - cx) ** 2 <= 2.5 ** 2] *= 0.4
+    movie = rng.poisson(lam).astype(np.uint16)
+    c = scan_movie(ArrayMovie(movie)).candidates
+    assert len(c) == 1, c
+    row = c.iloc[0]
+    assert row["kind"] == "transient" and row["frame"] == 400, c
+    assert abs(row["x"] - 20.5) <= 8 and abs(row["y"] - 20.75) <= 8
+
+
 def test_slow_drift_of_the_beam_raises_no_alarm():
     lam, rng = _flat(n=1500)
     lam *= (1.0 + 0.2 * np.sin(np.arange(1500) / 200.0))[:, None, None]

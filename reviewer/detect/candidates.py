@@ -10,6 +10,8 @@ from reviewer.detect.settings import DetectSettings
 from reviewer.detect.statistics import raw_level, threshold_z
 
 CANDIDATE_COLUMNS = ("frame", "frame_end", "time_s", "kind", "score", "x", "y")
+PULSE_NMS = 8  # frames: pulse peaks closer than this are one event
+PAIR_NEAR = 0.75  # appear/leave pairs: at most this share of the 4-tile "same place" distance apart
 ECHO_SHARE = 0.8  # a kept event explains a nearby peak when its own value there is ≥ this share
 
 
@@ -137,12 +139,39 @@ def local_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float,
             if j in used or o["sign"] != -e["sign"] or e["sign"] == 0:
                 continue
             a, b = smax[e["at"]], smax[o["at"]]
-            if np.hypot(o["x"] - e["x"], o["y"] - e["y"]) <= near and min(a, b) >= 0.5 * max(a, b):
+            if np.hypot(o["x"] - e["x"], o["y"] - e["y"]) <= PAIR_NEAR * near and min(a, b) >= 0.5 * max(a, b):
                 e["kind"], e["frame_end"] = "transient", o["frame"] - 1
                 e["score"] = max(e["score"], o["score"])
                 used.add(j)
                 break
-    return [e for i, e in enumerate(events) if i not in used]
+    events = [e for i, e in enumerate(events) if i not in used]
+    spans = [e for e in events if e["kind"] == "transient"]
+    return [e for e in events if e["kind"] == "transient" or not any(  # a longer window's echo
+        o["frame"] - s.separation <= e["frame"] <= o["frame_end"] + s.separation + 1
+        and np.hypot(o["x"] - e["x"], o["y"] - e["y"]) <= near
+        for o in spans)]
+
+
+def pulse_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float,
+                 blocked: np.ndarray, found: list[dict]) -> list[dict]:
+    """Short pulses (a spot that changes for a few frames, then returns) from the pulse statistic
+    (its own calibrated score, same threshold), one per ±PULSE_NMS frames, skipped where a step
+    or transient found by the step statistic starts at the same place and time."""
+    if "pulse" not in f:
+        return []
+    pz, px, py, dur = f["pulse"], f["px"], f["py"], f["pdur"].astype(np.int64)
+    n = len(pz)
+    near = 4.0 * s.tile
+    ok = (pz > z_thr) & np.isfinite(px) & ~blocked.reshape(n, -1).any(axis=1)
+    out: list[dict] = []
+    for t in _peaks(pz, ok, PULSE_NMS):
+        end = t + max(int(dur[t]), 1) - 1
+        if any(t - s.separation <= e["frame"] <= end + s.separation  # found at its onset
+               and np.hypot(e["x"] - px[t], e["y"] - py[t]) <= near for e in found):
+            continue
+        out.append(dict(frame=int(t), frame_end=int(end), score=float(pz[t]), x=float(px[t]),
+                        y=float(py[t]), kind="transient"))
+    return out
 
 
 def propose(features: dict[str, np.ndarray], settings: DetectSettings | None = None,
@@ -164,7 +193,8 @@ def propose(features: dict[str, np.ndarray], settings: DetectSettings | None = N
             blocked[max(lo, 0): min(hi + 1, n), k] = True
     rows = [dict(frame=g["frame"], frame_end=g["frame_end"], kind="global", score=g["score"],
                  x=np.nan, y=np.nan) for g in glob]
-    for e in local_events(f, s, z_thr, blocked):
+    local = local_events(f, s, z_thr, blocked)
+    for e in local + pulse_events(f, s, z_thr, blocked, local):
         rows.append({k: e[k] for k in ("frame", "frame_end", "kind", "score", "x", "y")})
     df = pd.DataFrame(rows, columns=[c for c in CANDIDATE_COLUMNS if c != "time_s"])
     df = df.sort_values("frame", kind="stable").reset_index(drop=True)

@@ -9,15 +9,12 @@ from functools import lru_cache
 
 import numpy as np
 
-from reviewer.detect.reduce import SHAPES, Scratch, best_boxes, centroid, pooled_absmax
-from reviewer.detect.statistics import effective_tests, raw_level, step_weight
+from reviewer.detect.locate import TREND_MIN_W, locate, onset_shift
+from reviewer.detect.reduce import SHAPES, Scratch, pooled_absmax
+from reviewer.detect.statistics import effective_tests, step_weight
 
 DECIMATE_MIN_W = 8  # windows this long are evaluated every 2nd frame (their peaks are ≥ w wide)
 TREND_SPAN = 256  # frames over which a tile's trend is taken as constant
-TREND_MIN_W = 8  # shorter windows skip the per-tile trend removal (a trend adds ∝ w^1.5 to z)
-TREND_Z = 3.0  # a box drifts when a w-block difference beside the split exceeds this many sd
-STEP_LIKE_SD = 1.5  # long-window-only detections must be this close to a step's short-window echo
-LOCATE_Z = 2.5  # frames whose calibrated z exceeds this get a location (cheap: only those frames)
 
 
 @dataclass
@@ -220,94 +217,9 @@ def score_chunk(xn: np.ndarray, lo: int, hi: int, windows: tuple[int, ...], tile
     x = np.full(m, np.nan, np.float32)
     y = np.full(m, np.nan, np.float32)
     k_eff = null_tests(xn.shape[1], xn.shape[2], tuple(windows), outer)
-    # locate the frames above the level that are local peaks of some window's series (candidates
-    # are such peaks); the location comes from the strongest window peaking there
-    level = raw_level(LOCATE_Z, k_eff)
-    loc_z = np.zeros(m, np.float32)
-    loc_k = np.full(m, -1, np.int64)
-    for k in range(len(windows)):
-        pw = per_window[:, k]
-        peak = pw > np.maximum(level, loc_z)
-        peak[1:] &= pw[1:] >= pw[:-1]
-        peak[:-1] &= pw[:-1] >= pw[1:]
-        loc_z[peak], loc_k[peak] = pw[peak], k
-    idx = np.flatnonzero(loc_k >= 0)
-    if len(idx):
-        best_window[idx] = loc_k[idx]
-        z = np.stack([maps[loc_k[i]][0][i // maps[loc_k[i]][1]] for i in idx])
-        shp, rr, cc, vv = best_boxes(z)
-        sign[idx] = np.where(vv > 0, 1, -1)
-        for j, i in enumerate(idx):
-            sh, r, c, v = int(shp[j]), int(rr[j]), int(cc[j]), float(vv[j])
-            x[i], y[i] = centroid(z[j], sh, r, c, v, tile)
-            shift[i] = onset_shift(xn, lo + i, SHAPES[sh], r, c, 1 if v > 0 else -1,
-                                   windows[loc_k[i]])
-            k = int(loc_k[i])
-            if k == len(windows) - 1 and k > 0 and windows[k] >= TREND_MIN_W:
-                zs, st = maps[k - 1]
-                near = [box_value(zs[j], sh, r, c)
-                        for j in range(max(i - 2, 0) // st, min(i + 2, m - 1) // st + 1)]
-                if (not step_like(v, near, windows[k - 1], windows[k])
-                        and trending(xn, lo + i, SHAPES[sh], r, c, v, windows[k])):
-                    per_window[i, k] = 0.0  # a trend's signature, not a step's
-        smax = per_window.max(axis=1)
+    sign, x, y, shift = locate(xn, lo, per_window, best_window, maps, windows, tile, k_eff)
+    smax = per_window.max(axis=1)
     return ChunkScores(smax, per_window, best_window, sign, x, y, frac, k_eff, shift)
-
-
-def box_value(z: np.ndarray, shape_index: int, r: int, c: int) -> float:
-    """The pooled (normalised) value of one box of a tile z map (gy, gx)."""
-    h, w = SHAPES[shape_index]
-    return float(z[r: r + h, c: c + w].sum()) / np.sqrt(h * w)
-
-
-def step_like(z_long: float, z_short: list[float], w_short: int, w_long: int) -> bool:
-    """Whether a long window's step z on one box is backed by the next shorter window on the same
-    box as a step would be. For a step, both windows straddle the same split: z_short given z_long
-    is normal with mean ρ·z_long and variance 1 − ρ², ρ = √(w_short / w_long). A slow trend gives
-    z ∝ w^1.5 instead, far less at the shorter window. The best of the few frames around the peak
-    is used (a weak step's peak may sit a frame or two off); fails when it lies more than
-    STEP_LIKE_SD sd below the step's expectation."""
-    rho = np.sqrt(w_short / w_long)
-    best = max((np.sign(z_long) * v for v in z_short), default=0.0)
-    return best - rho * abs(z_long) >= -STEP_LIKE_SD * np.sqrt(1.0 - rho * rho)
-
-
-def trending(xn: np.ndarray, row: int, shape: tuple[int, int], r: int, c: int, z: float,
-             w: int) -> bool:
-    """Whether one box's summed tiles drift on either side of a long-window step: with blocks of w
-    frames P2 P1 | N1 N2 around the split, P1 − P2 or N2 − N1 (free of the step itself) exceeds
-    TREND_Z times the sd of a w-block difference (taken from the box's own step z). Unknown (near
-    the movie's ends) counts as trending."""
-    a, b = row - 2 * w, row + 2 * w
-    if a < 0 or b > len(xn):
-        return True
-    ser = xn[a:b, r: r + shape[0], c: c + shape[1]].reshape(4, w, -1).sum(axis=(1, 2),
-                                                                         dtype=np.float64) / w
-    p2, p1, n1, n2 = ser
-    plain = n1 - p1
-    if plain * z <= 0:
-        return True
-    sd = abs(plain / z)  # sd of a difference of two w-frame means, from the box's own z
-    return max(abs(p1 - p2), abs(n2 - n1)) > TREND_Z * sd
-
-
-def onset_shift(xn: np.ndarray, row: int, shape: tuple[int, int], r: int, c: int, sign: int,
-                w: int) -> int:
-    """Maximum-likelihood frame of a single mean change of the given sign in the summed tiles of
-    one box, searched over rows row − w .. row + w (Gaussian, equal variances: the split k of N
-    samples maximising k(N − k)/N · (mean after − mean before)²); returned relative to row."""
-    a, b = max(row - w, 0), min(row + w + 1, len(xn))
-    if b - a < 2:
-        return 0
-    ser = xn[a:b, r: r + shape[0], c: c + shape[1]].reshape(b - a, -1).sum(axis=1,
-                                                                          dtype=np.float64)
-    n = len(ser)
-    cum = np.cumsum(ser)
-    k = np.arange(1, n)
-    diff = (cum[-1] - cum[:-1]) / (n - k) - cum[:-1] / k
-    stat = k * (n - k) / n * diff * diff
-    stat[sign * diff <= 0] = -1.0
-    return int(a + 1 + int(np.argmax(stat)) - row)
 
 
 __all__ = ["SHAPES", "ChunkScores", "noise_gain", "noise_sd", "onset_shift", "score_chunk"]

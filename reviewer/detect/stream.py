@@ -11,6 +11,7 @@ import numpy as np
 import pandas as pd
 
 from reviewer.detect.drift import phase_shift
+from reviewer.detect.pulse import null_pulse_tests, pulse_chunk
 from reviewer.detect.reduce import Scratch, bin_block
 from reviewer.detect.scoring import noise_gain, noise_sd, score_chunk
 from reviewer.detect.settings import DetectSettings
@@ -82,6 +83,9 @@ class _Scanner:
         self.f["sign"] = np.zeros(n, np.int8)
         self.f["shift"] = np.zeros(n, np.int16)  # onset − frame where located
         self.f["blank"] = np.zeros(n, np.uint8)
+        for name in ("pmax", "px", "py"):  # short-pulse statistic (pulse.py), best tile
+            self.f[name] = np.zeros(n, f32)
+        self.f["pdur"] = np.zeros(n, np.int8)
 
     def feed(self, start: int, block: np.ndarray) -> None:
         k = len(block)
@@ -147,6 +151,8 @@ class _Scanner:
         f["smax"][sl], f["zw"][sl], f["best_window"][sl] = cs.smax, cs.per_window, cs.best_window
         f["sign"][sl], f["x"][sl], f["y"][sl], f["frac"][sl] = cs.sign, cs.x, cs.y, cs.frac
         f["shift"][sl] = cs.shift
+        ps = pulse_chunk(self.buf[: self.fill], lo, hi, self.tile, self.gain)
+        f["pmax"][sl], f["px"][sl], f["py"][sl], f["pdur"][sl] = ps.pmax, ps.x, ps.y, ps.dur
         if hi - lo >= 32:
             self.k_medians.append(cs.k_eff)
         # whole-field shift where many tiles changed at once (stage jump test)
@@ -181,6 +187,9 @@ class _Scanner:
         k_eff = float(np.median(self.k_medians)) if self.k_medians else 1.0
         f["score"] = calibrate_max(f["smax"], k_eff).astype(np.float32)
         f["k_eff"] = np.array(k_eff)
+        k_pulse = null_pulse_tests(self.gy, self.gx)
+        f["pulse"] = calibrate_max(f["pmax"], k_pulse).astype(np.float32)
+        f["k_pulse"] = np.array(k_pulse)
         w0 = self.s.windows[0]
         lev = np.log(np.clip(np.where(f["blank"] == 1, np.nan, f["level"]), 1e-6, None))
         lev = pd.Series(lev).ffill().bfill().to_numpy() if np.isnan(lev).any() else lev
