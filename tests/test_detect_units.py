@@ -106,3 +106,17 @@ def test_bad_settings_and_tiny_frames_are_bad_input():
     with pytest.raises(BadInput):
         scan_movie(ArrayMovie(np.zeros((50, 2, 2), np.uint16)))
     assert DetectSettings.from_dict(DetectSettings(alpha=0.1).to_dict()) == DetectSettings(alpha=0.1)
+
+
+def test_large_frames_are_read_in_smaller_blocks():
+    """Memory stays bounded for big frames: 2048x2048 uint16 frames (8 MiB) are read a few at a
+    time, small frames in full blocks."""
+    from reviewer.detect.settings import DetectSettings
+    from reviewer.detect.stream import BLOCK_BYTES, block_frames
+    from reviewer.movie import ArrayMovie
+
+    s = DetectSettings()
+    big = ArrayMovie(np.zeros((1, 2048, 2048), np.uint16))
+    small = ArrayMovie(np.zeros((1, 128, 128), np.uint16))
+    assert block_frames(big, s) * 2048 * 2048 * 2 <= BLOCK_BYTES
+    assert block_frames(small, s) == s.read_block

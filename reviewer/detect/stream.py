@@ -205,6 +205,16 @@ class _Scanner:
         return {k: f[k] for k in order}, meta
 
 
+BLOCK_BYTES = 32 << 20  # at most this much of raw frames per read (memory bound for large frames)
+
+
+def block_frames(movie, s: DetectSettings) -> int:
+    """Frames per read: settings.read_block, fewer when the frames are large (a 2k×2k uint16 frame
+    is 8 MiB, so 64 of them decoded at once would be 512 MiB)."""
+    frame_bytes = movie.shape[0] * movie.shape[1] * np.dtype(movie.dtype).itemsize
+    return max(4, min(s.read_block, BLOCK_BYTES // max(frame_bytes, 1)))
+
+
 def compute_features(movie, settings: DetectSettings | None = None,
                      progress: Callable[[int], None] | None = None,
                      cancel=None) -> tuple[dict[str, np.ndarray], dict]:
@@ -214,7 +224,7 @@ def compute_features(movie, settings: DetectSettings | None = None,
         raise BadInput(f"{movie.path}: the movie has no frames")
     t0 = time.perf_counter()
     sc = _Scanner(movie.n_frames, tuple(movie.shape), s, str(movie.path))
-    for start, block in movie.iter_blocks(s.read_block):
+    for start, block in movie.iter_blocks(block_frames(movie, s)):
         if cancel is not None and cancel.is_set():
             raise ScanCancelled("scan cancelled")
         sc.feed(start, np.asarray(block))
