@@ -1,6 +1,6 @@
-"""The sequential pass (`iter_blocks`) hands out read-only views of mapped blocks for plainly stored
-frames; they must equal what numpy and tifffile read, whatever the block size, and a file truncated
-during the pass must give BadInput, not a crash."""
+"""The sequential pass (`iter_blocks`) must give what numpy and tifffile read, whatever the block
+size: fresh arrays by default, one reused buffer with reuse=True (the scan's fast path, where the
+caller copies what it keeps); a file truncated during the pass gives BadInput, not a crash."""
 
 from __future__ import annotations
 
@@ -29,31 +29,42 @@ def _pages(tmp_path):
     return path
 
 
+def _reference(path):
+    if path.suffix == ".npy":
+        return np.load(path)
+    with tifffile.TiffFile(path) as tif:  # every page (imread would return the first series only)
+        return np.stack([page.asarray() for page in tif.pages])
+
+
 @pytest.mark.parametrize("make", [_npy, _pages])
 @pytest.mark.parametrize("size", [1, 7, 64, 500])
-def test_blocks_equal_the_reference_reader(tmp_path, make, size):
+@pytest.mark.parametrize("reuse", [False, True])
+def test_blocks_equal_the_reference_reader(tmp_path, make, size, reuse):
     path = make(tmp_path)
-    if path.suffix == ".npy":
-        reference = np.load(path)
-    else:  # every page (imread would return the first series only)
-        with tifffile.TiffFile(path) as tif:
-            reference = np.stack([page.asarray() for page in tif.pages])
+    reference = _reference(path)
     with open_movie(path) as movie:
-        starts, blocks = zip(*movie.iter_blocks(size), strict=True)
-        assert list(starts) == list(range(0, len(DATA), size))
-        got = np.concatenate(blocks)
-        assert np.array_equal(got, reference)
-        assert not blocks[0].flags.writeable
+        starts, blocks = [], []
+        for start, block in movie.iter_blocks(size, reuse=reuse):
+            starts.append(start)
+            blocks.append(block.copy() if reuse else block)
+        assert starts == list(range(0, len(DATA), size))
+        assert np.array_equal(np.concatenate(blocks), reference)
         assert np.array_equal(movie.block(3, 40), reference[3:40])
+
+
+def test_default_blocks_are_independent_arrays(tmp_path):
+    with open_movie(_npy(tmp_path)) as movie:
+        first, second = [b for _, b in movie.iter_blocks(64)][:2]
+        assert not np.shares_memory(first, second)
 
 
 def test_truncated_during_the_pass_is_bad_input(tmp_path):
     path = _npy(tmp_path)
     with open_movie(path) as movie:
-        blocks = movie.iter_blocks(32)
+        blocks = movie.iter_blocks(32, reuse=True)
         next(blocks)
         with open(path, "r+b") as f:
             f.truncate(path.stat().st_size // 2)
-        with pytest.raises(BadInput, match="shorter"):
+        with pytest.raises(BadInput, match="truncated"):
             for _ in blocks:
                 pass

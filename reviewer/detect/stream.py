@@ -122,9 +122,9 @@ class _Scanner:
 
     def _remember(self, levels: np.ndarray) -> None:
         """Keep the last 64 good frames' levels (a ring) for the blank test's reference."""
-        for v in levels[-len(self.recent):]:
-            self.recent[self.n_recent % len(self.recent)] = v
-            self.n_recent += 1
+        v = levels[-len(self.recent):]
+        self.recent[(self.n_recent + np.arange(len(v))) % len(self.recent)] = v
+        self.n_recent += len(v)
 
     def _recent_median(self) -> float:
         r = self.recent[: min(self.n_recent, len(self.recent))]
@@ -224,7 +224,7 @@ def compute_features(movie, settings: DetectSettings | None = None,
         raise BadInput(f"{movie.path}: the movie has no frames")
     t0 = time.perf_counter()
     sc = _Scanner(movie.n_frames, tuple(movie.shape), s, str(movie.path))
-    for start, block in movie.iter_blocks(block_frames(movie, s)):
+    for start, block in movie.iter_blocks(block_frames(movie, s), reuse=True):
         if cancel is not None and cancel.is_set():
             raise ScanCancelled("scan cancelled")
         sc.feed(start, np.asarray(block))

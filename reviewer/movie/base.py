@@ -95,9 +95,11 @@ class Movie(ABC):
             return np.empty((0, *self.shape), dtype=self.dtype)
         return self._read(start, stop)
 
-    def iter_blocks(self, size: int = 64, start: int = 0,
-                    stop: int | None = None) -> Iterator[tuple[int, np.ndarray]]:
-        """Yield (first frame index, block) over the movie, in order."""
+    def iter_blocks(self, size: int = 64, start: int = 0, stop: int | None = None, *,
+                    reuse: bool = False) -> Iterator[tuple[int, np.ndarray]]:
+        """Yield (first frame index, block) over the movie, in order. With reuse=True a reader may
+        hand out the same buffer for every block (faster for one pass; the caller copies what it
+        keeps)."""
         stop = self.n_frames if stop is None else min(stop, self.n_frames)
         for s in range(start, stop, size):
             yield s, self.block(s, min(s + size, stop))

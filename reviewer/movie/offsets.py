@@ -3,14 +3,12 @@
 Used by uncompressed TIFF (contiguous or page-per-frame), .npy and raw binary files. Nothing is read at
 open; a frame read reads that frame's bytes straight into the output array. Random access uses no memory
 map: a file that shrinks while open gives a clear error instead of a crash (SIGBUS), and resident memory
-stays the size of what was asked for. The one sequential pass (`iter_blocks`, used by the scan) maps one
-block at a time instead and hands out read-only views, saving the copy; the file size is checked before
-each block, and each map goes when its block is no longer used.
+stays the size of what was asked for. The one sequential pass (`iter_blocks(reuse=True)`, used by the
+scan) reads every block into the same buffer: no fresh memory to fault in per block.
 """
 
 from __future__ import annotations
 
-import mmap
 import os
 import threading
 from collections.abc import Iterator
@@ -91,28 +89,25 @@ class OffsetMovie(Movie):
             self._const_stride = int(d[0]) if ok else None
         return self._const_stride
 
-    def iter_blocks(self, size: int = 64, start: int = 0,
-                    stop: int | None = None) -> Iterator[tuple[int, np.ndarray]]:
+    def iter_blocks(self, size: int = 64, start: int = 0, stop: int | None = None, *,
+                    reuse: bool = False) -> Iterator[tuple[int, np.ndarray]]:
         step = self._stride()
-        if self.rgb or step is None or self.file_dtype != self.dtype or not self.file_dtype.isnative:
-            yield from super().iter_blocks(size, start, stop)
+        if (not reuse or self.rgb or step is None or self.file_dtype != self.dtype
+                or not self.file_dtype.isnative):
+            yield from super().iter_blocks(size, start, stop, reuse=reuse)
             return
         stop = self.n_frames if stop is None else min(stop, self.n_frames)
+        if stop <= start:
+            return
+        item = self.file_dtype.itemsize
+        inner = tuple(int(v) for v in np.cumprod((1, *self.frame_shape[:0:-1]))[::-1] * item)
+        buf = np.empty((min(size, stop - start) - 1) * step + self.frame_bytes, np.uint8)
         for s in range(start, stop, size):
             n = min(s + size, stop) - s
-            first = int(self.offsets[s])
-            end = first + (n - 1) * step + self.frame_bytes
-            if self._fd is None:
-                raise ValueError("movie is closed")
-            if os.fstat(self._fd).st_size < end:
-                raise BadInput(f"{self.path}: the file is shorter than when it was opened "
-                               "(was it truncated?)")
-            base = first - first % mmap.ALLOCATIONGRANULARITY
-            mm = mmap.mmap(self._fd, end - base, offset=base, access=mmap.ACCESS_READ)
-            item = self.file_dtype.itemsize
-            inner = np.cumprod((1, *self.frame_shape[:0:-1]))[::-1] * item  # C strides in a frame
-            yield s, np.ndarray((n, *self.frame_shape), self.file_dtype, buffer=mm,
-                                offset=first - base, strides=(step, *inner.tolist()))
+            span = buf[: (n - 1) * step + self.frame_bytes]
+            self._fill(span, int(self.offsets[s]))
+            yield s, np.ndarray((n, *self.frame_shape), self.file_dtype, buffer=span,
+                                strides=(step, *inner))
 
     def _read(self, start: int, stop: int) -> np.ndarray:
         raw = self._raw(start, stop)
