@@ -101,11 +101,11 @@ PRESETS: dict[str, Scenario] = {
                      drift_px_per_frame=0.0015, drift_wander_px=1.5, beam_wander=0.05),
     # The demo: ~20 layers over two fronts, nucleations, a dissolution, a transient, 2 blanked
     # frames, a beam step and one stage jump. Dose kept low so the zlib TIFF stays under 20 MB.
-    "sample": Scenario(name="sample", n_frames=3000, height=96, width=128, dose=12.0,
+    "sample": Scenario(name="sample", n_frames=2000, height=96, width=128, dose=30.0,
                        n_fronts=2, step_px=1.0, mean_wait=260.0, front_len_px=52.0,
                        drift_px_per_frame=0.001, drift_wander_px=1.0, beam_wander=0.04,
                        wander_period=1500.0, nucleations_per_10k=6.7, dissolutions_per_10k=3.4,
-                       transients_per_10k=3.4, blanks_per_10k=6.7, beam_steps_per_10k=3.4,
+                       transients_per_10k=3.4, blanks_per_10k=10.0, beam_steps_per_10k=3.4,
                        stage_jumps_per_10k=3.4, jump_px=5.0),
 }
 
@@ -226,7 +226,7 @@ def sample_path() -> Path:
 
 
 def ensure_sample() -> Path:
-    """The demo movie (~3,000 frames of 96x128 at 400 frames/s), generated once into the cache."""
+    """The demo movie (2,000 frames of 96x128 at 400 frames/s), generated once into the cache."""
     path = sample_path()
     if path.is_file() and truth_path(path).is_file():
         return path

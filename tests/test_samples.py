@@ -209,7 +209,7 @@ def test_bundled_sample_is_small_and_complete():
     path = growth.ensure_sample()
     assert path.stat().st_size <= 20e6
     with tifffile.TiffFile(path) as tf:
-        assert tf.series[0].shape == (3000, 96, 128)
+        assert tf.series[0].shape == (2000, 96, 128)
         assert tf.imagej_metadata["finterval"] == pytest.approx(1 / 400.0)
     truth = pd.read_csv(growth.truth_path(path))
     whats = truth["what"].value_counts()
