@@ -58,3 +58,21 @@ def session_dir(movie_path: str | os.PathLike, fingerprint: str,
             path = data_root() / "sessions" / fingerprint
     path.mkdir(parents=True, exist_ok=True)
     return path
+
+
+def movie_stem(movie_path: str | os.PathLike) -> str:
+    """A movie's name without its extension (``run07.ome.tif`` -> ``run07``; a folder keeps its name)."""
+    path = Path(movie_path)
+    name = path.name
+    for ext in (".ome.tiff", ".ome.tif"):
+        if name.lower().endswith(ext):
+            return name[: -len(ext)]
+    return path.stem if path.is_file() else name
+
+
+def output_beside(movie_path: str | os.PathLike, suffix: str, fallback: str | os.PathLike) -> Path:
+    """Default place of a file derived from a movie: ``<stem><suffix>`` beside the movie when that
+    folder is writable, else in `fallback` (the session or cache folder)."""
+    movie = Path(movie_path).resolve()
+    name = movie_stem(movie) + suffix
+    return movie.parent / name if _writable(movie.parent) else Path(fallback) / name

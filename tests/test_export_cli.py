@@ -9,7 +9,6 @@ import pandas as pd
 import pytest
 
 from reviewer.cli import main
-from reviewer.commands import export as export_cmd
 from reviewer.store.session import Session
 
 try:
@@ -76,7 +75,6 @@ def test_read_only_movie_folder_writes_into_the_session_folder(reviewed, monkeyp
         return False if str(p).startswith(ro) else real(p, mode)
 
 
-    monkeypatch.setattr(export_cmd.os, "access", fake)
     monkeypatch.setattr(paths.os, "access", fake)
     s = Session.open(reviewed, open_movie(reviewed).fingerprint)  # session now in the data folder
     assert s.folder != reviewed.parent / "platelets.npy.review"
@@ -101,12 +99,15 @@ def test_explicit_session_folder(reviewed, tmp_path):
 
 
 def test_default_output_falls_back_to_the_session_folder(tmp_path, monkeypatch):
+    import reviewer.paths as paths
+    from reviewer.paths import output_beside
+
     movie = tmp_path / "run 7.ome.tif"
     movie.write_bytes(b"x")
     session = tmp_path / "sess"
-    assert export_cmd.default_output(movie, session) == tmp_path / "run 7.events.csv"
-    monkeypatch.setattr(export_cmd.os, "access", lambda p, mode: False)
-    assert export_cmd.default_output(movie, session) == session / "run 7.events.csv"
+    assert output_beside(movie, ".events.csv", session) == tmp_path / "run 7.events.csv"
+    monkeypatch.setattr(paths.os, "access", lambda p, mode: False)
+    assert output_beside(movie, ".events.csv", session) == session / "run 7.events.csv"
 
 
 @needs_open_movie

@@ -3,12 +3,12 @@
 from __future__ import annotations
 
 import argparse
-import os
 import sys
 from pathlib import Path
 
 from reviewer.commands._common import add_movie_arguments, open_movie_from_args
 from reviewer.errors import BadInput
+from reviewer.paths import output_beside
 from reviewer.store.export import export_events, parse_statuses
 from reviewer.store.table import STATUSES
 
@@ -28,25 +28,6 @@ def register(subparsers) -> None:
                    help="session folder (default: <movie>.review/ beside the movie, else the user "
                         "data folder)")
     p.set_defaults(func=run)
-
-
-def _stem(movie_path: Path) -> str:
-    name = movie_path.name
-    for ext in (".ome.tiff", ".ome.tif"):
-        if name.lower().endswith(ext):
-            return name[: -len(ext)]
-    return movie_path.stem if movie_path.is_file() else name
-
-
-def _writable(folder: Path) -> bool:
-    return folder.is_dir() and os.access(folder, os.W_OK | os.X_OK)
-
-
-def default_output(movie_path: Path, session_folder: Path) -> Path:
-    movie_path = Path(movie_path).resolve()
-    name = f"{_stem(movie_path)}.events.csv"
-    beside = movie_path.parent
-    return beside / name if _writable(beside) else session_folder / name
 
 
 def _seed_from_scan(session, movie) -> None:
@@ -77,7 +58,7 @@ def run(args: argparse.Namespace) -> int:
             print(f"reviewer: {note}", file=sys.stderr)
         if not session.seeded and not session.events:
             _seed_from_scan(session, movie)
-        out = Path(args.output) if args.output else default_output(movie.path, session.folder)
+        out = Path(args.output) if args.output else output_beside(movie.path, ".events.csv", session.folder)
         try:
             csv_path, json_path = export_events(session, out, statuses, movie=movie)
         except OSError as exc:

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import argparse
-import os
 import sys
 import threading
 from pathlib import Path
@@ -29,14 +28,6 @@ def register(subparsers) -> None:
                         "about 0.05 false alarms per movie; 2 finds weaker events and more noise)")
     p.add_argument("--force", action="store_true", help="scan again even if a cached scan exists")
     p.set_defaults(func=run)
-
-
-def _default_output(movie_path: Path, cache: Path) -> Path:
-    name = movie_path.name.split(".")[0] if movie_path.is_file() else movie_path.name
-    beside = movie_path.parent / f"{name}.candidates.csv"
-    if os.access(movie_path.parent, os.W_OK | os.X_OK):
-        return beside
-    return cache / f"{name}.candidates.csv"
 
 
 def candidate_rows(candidates) -> list[dict]:
@@ -72,7 +63,7 @@ def run(args: argparse.Namespace) -> int:
         propose,
         save_scan,
     )
-    from reviewer.paths import cache_dir
+    from reviewer.paths import cache_dir, output_beside
     from reviewer.progress import Progress
     from reviewer.store.table import write_csv
 
@@ -80,8 +71,8 @@ def run(args: argparse.Namespace) -> int:
     movie = open_movie_from_args(args)
     try:
         folder = cache_dir(movie.fingerprint) / "scan"
-        out = Path(args.output) if args.output else _default_output(Path(args.movie),
-                                                                       cache_dir(movie.fingerprint))
+        out = Path(args.output) if args.output else output_beside(args.movie, ".candidates.csv",
+                                                                     cache_dir(movie.fingerprint))
         if out.parent and not out.parent.is_dir():
             raise BadInput(f"{out}: folder does not exist")
         cached = None if args.force else load_scan(folder)

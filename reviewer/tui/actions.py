@@ -232,9 +232,9 @@ class ReviewActions(PlaybackMixin):
 
     def export_path(self):
         """Where `e` writes: the same default as `reviewer export MOVIE`."""
-        from reviewer.commands.export import default_output
+        from reviewer.paths import output_beside
 
-        return default_output(self.movie.path, self.session.folder)
+        return output_beside(self.movie.path, ".events.csv", self.session.folder)
 
     def action_export(self) -> None:
         from reviewer.errors import BadInput
