@@ -22,6 +22,7 @@ from pathlib import Path
 import numpy as np
 
 from reviewer.errors import BadInput
+from reviewer.movie.base import Timing
 from reviewer.paths import session_dir
 from reviewer.store.events import (
     FIELDS,
@@ -156,11 +157,14 @@ class Session(ReviewState):
         self._deferred = fn
 
     # ---- timing --------------------------------------------------------------------------
+    @property
+    def timing(self) -> Timing:
+        """The movie's frame times as recorded in meta (per-frame times first, else fps)."""
+        times = self.times_s if self.times_s is not None and len(self.times_s) else None
+        return Timing(fps=self.meta.get("fps"), times_s=times)
+
     def time_of(self, frame: int) -> float | None:
-        if self.times_s is not None and len(self.times_s):
-            return float(self.times_s[min(max(frame, 0), len(self.times_s) - 1)])
-        fps = self.meta.get("fps")
-        return frame / fps if fps else None
+        return self.timing.time_of(int(frame))
 
     def _retime(self) -> None:
         if self.times_s is None and not self.meta.get("fps"):
@@ -199,10 +203,7 @@ class Session(ReviewState):
         return len(rows)
 
     def time_of_frames(self, frames: np.ndarray) -> np.ndarray | None:
-        if self.times_s is not None and len(self.times_s):
-            return self.times_s[np.clip(frames, 0, len(self.times_s) - 1)]
-        fps = self.meta.get("fps")
-        return frames / fps if fps else None
+        return self.timing.time_of(np.asarray(frames))
 
     def _edit(self, op: str, event_id: str, decision: bool = True, **new) -> Event:
         ev = self.get(event_id)
