@@ -45,6 +45,17 @@ def _same(a: Path, b: Path) -> bool:
         return a.resolve() == b.resolve()
 
 
+def refuse_overwrite(outputs: list[Path], inputs: list[Path]) -> None:
+    """BadInput when an output is an input, or a movie's descriptor or timestamps file."""
+    for out in outputs:
+        for src in inputs:
+            src = Path(src)
+            related = [src, Path(str(src) + ".json"), src.with_suffix(".json"),
+                       Path(str(src) + ".times.csv")]
+            if any(_same(Path(out), r) for r in related):
+                raise BadInput(f"{out}: that is an input of this command; choose another -o")
+
+
 def save_kymograph(image: np.ndarray, png: Path, meta: dict, events: np.ndarray | None = None,
                    inputs: list[Path] | None = None) -> Path:
     """Write `png` and its TIFF beside it (same stem); refuse to write over any input; each file
@@ -54,13 +65,7 @@ def save_kymograph(image: np.ndarray, png: Path, meta: dict, events: np.ndarray 
 
     png = Path(png)
     tif = png.with_suffix(".tif")
-    for out in (png, tif):
-        for src in inputs or []:
-            src = Path(src)
-            related = [src, Path(str(src) + ".json"), src.with_suffix(".json"),
-                       Path(str(src) + ".times.csv")]
-            if any(_same(out, r) for r in related):
-                raise BadInput(f"{out}: that is an input of this command; choose another -o")
+    refuse_overwrite([png, tif], inputs or [])
     if not png.parent.is_dir():
         raise BadInput(f"{png.parent}: no such folder")
     tmps = [png.with_name(f".{png.name}.tmp"), tif.with_name(f".{tif.name}.tmp")]
