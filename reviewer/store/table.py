@@ -19,7 +19,7 @@ COLUMNS: tuple[str, ...] = (
     "status", "label", "note", "source", "reviewed_at",
 )
 KINDS = ("step", "transient", "global", "manual")
-STATUSES = ("candidate", "accepted", "rejected")
+STATUSES = ("candidate", "accepted", "rejected", "disputed")  # disputed: reviewers disagreed (merge)
 SOURCES = ("detector", "manual")
 _TEXT = {"kind", "status", "label", "note", "source", "reviewed_at"}
 _DANGEROUS = ("=", "+", "-", "@", "\t", "\r")

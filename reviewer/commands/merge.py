@@ -1,0 +1,68 @@
+"""`reviewer merge A.csv B.csv -o MERGED.csv`: one table from two reviews; disagreements 'disputed'."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+
+def register(subparsers) -> None:
+    p = subparsers.add_parser(
+        "merge", help="merge two exported reviews of one movie; disagreements become 'disputed'",
+        description="Match the events of two exported tables as `reviewer compare` does and write one "
+                    "table: decisions both reviewers agree on are kept, every other event gets the "
+                    "status 'disputed' with both views in its note, for a third look.")
+    p.add_argument("a", metavar="A.csv", help="one reviewer's exported table")
+    p.add_argument("b", metavar="B.csv", help="the other's")
+    p.add_argument("-o", "--output", required=True, metavar="MERGED.csv",
+                   help="the merged table; its provenance goes beside it as MERGED.json")
+    p.add_argument("--tolerance", type=int, default=2, metavar="FRAMES",
+                   help="manual marks this close in frames are the same event (default 2)")
+    p.set_defaults(func=run)
+
+
+def _refuse_inputs(out: Path, inputs: list[Path]) -> None:
+    from reviewer.errors import BadInput
+    from reviewer.store.export import sidecar_path
+
+    targets = [out.resolve(), sidecar_path(out).resolve()]
+    for src in inputs:
+        for related in (src, sidecar_path(src)):
+            if related.resolve() in targets:
+                raise BadInput(f"{out}: would overwrite the input {related}; choose another -o")
+
+
+def run(args: argparse.Namespace) -> int:
+    import reviewer
+    from reviewer.errors import BadInput
+    from reviewer.store.agreement import agreement, merged_rows, read_review, same_movie
+    from reviewer.store.events import utc_now
+    from reviewer.store.export import sidecar_path
+    from reviewer.store.journal import write_json_atomic
+    from reviewer.store.table import write_csv
+
+    out = Path(args.output)
+    _refuse_inputs(out, [Path(args.a), Path(args.b)])
+    a, ia = read_review(args.a)
+    b, ib = read_review(args.b)
+    warning = same_movie(args.a, ia, args.b, ib)
+    if warning:
+        print(f"reviewer: warning: {warning}", file=sys.stderr)
+    result = agreement(a, b, args.tolerance)
+    rows = merged_rows(result)
+    disputed = sum(r["status"] == "disputed" for r in rows)
+    info = {"program": "reviewer", "version": reviewer.__version__, "merged_at": utc_now(),
+            "movie": ia.get("movie") or ib.get("movie"),
+            "inputs": [{"csv": str(Path(args.a).resolve()), "exported_at": ia.get("exported_at")},
+                       {"csv": str(Path(args.b).resolve()), "exported_at": ib.get("exported_at")}],
+            "kappa": result.kappa, "counts": {**result.counts, "disputed": disputed},
+            "csv": out.name}
+    try:
+        write_json_atomic(sidecar_path(out), info)  # the sidecar first: never a CSV without it
+        write_csv(rows, out)
+    except OSError as exc:
+        raise BadInput(f"{out}: cannot write ({exc.strerror or exc})") from None
+    print(f"wrote {len(rows)} events to {out}: {len(rows) - disputed} agreed, {disputed} disputed")
+    print(f"provenance in {sidecar_path(out)}")
+    return 0
