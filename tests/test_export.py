@@ -105,7 +105,8 @@ def test_sidecar_keys_and_values(session, tmp_path):
     assert (m["frames"], m["fps"], m["height"], m["width"]) == (2000, 400.0, 6, 8)
     assert m["duration_s"] == pytest.approx(5.0)  # 2000 frames at 400 frames/s
     assert info["detector"] == {"sensitivity": 1.5, "window": 4}
-    assert info["counts"] == {"candidate": 2, "accepted": 2, "rejected": 1, "exported": 5}
+    assert info["counts"] == {"candidate": 2, "accepted": 2, "rejected": 1, "disputed": 0,
+                              "exported": 5}
     no_movie = json.loads(export_events(session, tmp_path / "b.csv")[1].read_text())["movie"]
     assert no_movie["duration_s"] == pytest.approx(5.0) and no_movie["fingerprint"] == "fp-export"
 
