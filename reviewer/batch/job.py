@@ -1,0 +1,83 @@
+"""One movie of a batch, scanned as `reviewer scan` does it: cached features reused unless `force`,
+candidates written beside the movie (or in its cache folder). Runs in a Dask worker; returns a small
+dict (a row of the summary), never frames, and never raises: a failure is a row with its one-line error.
+"""
+
+from __future__ import annotations
+
+import time
+from pathlib import Path
+
+KINDS = ("step", "transient", "global")
+
+
+def _row(path: Path) -> dict:
+    return {"movie": str(path), "frames": None, "duration_s": None, "fps": None,
+            **{k: None for k in KINDS}, "candidates": None, "scan_s": None, "status": "failed",
+            "error": "", "notices": "", "candidates_csv": "", "worker": _worker()}
+
+
+def _worker() -> str:
+    try:
+        from distributed import get_worker
+
+        return get_worker().address
+    except (ImportError, ValueError):
+        return "local"
+
+
+def scan_path(path: str, settings: dict, force: bool = False, fps: float | None = None) -> dict:
+    """Scan the movie at `path` with DetectSettings.from_dict(settings)."""
+    from reviewer.errors import BadInput
+
+    p = Path(path)
+    row = _row(p)
+    start = time.monotonic()
+    try:
+        row.update(_scan(p, settings, force, fps))
+    except BadInput as exc:
+        row["error"] = str(exc)
+    except MemoryError:
+        row["error"] = f"{p}: out of memory"
+    except OSError as exc:
+        row["error"] = f"{p}: {exc.strerror or exc}"
+    except Exception as exc:  # noqa: BLE001 - one bad movie must not stop the batch
+        text = str(exc).splitlines()[0][:200] if str(exc) else ""
+        row["error"] = f"{p}: {exc.__class__.__name__}: {text}".rstrip(": ")
+    row["scan_s"] = round(time.monotonic() - start, 3)
+    return row
+
+
+def _scan(p: Path, settings_dict: dict, force: bool, fps: float | None) -> dict:
+    from reviewer.commands.scan import candidate_rows
+    from reviewer.detect import DetectSettings, compute_features, load_scan, propose, save_scan
+    from reviewer.detect.stream import ScanResult
+    from reviewer.movie import open_movie
+    from reviewer.paths import cache_dir, output_beside
+    from reviewer.store.table import write_csv
+
+    settings = DetectSettings.from_dict(settings_dict)
+    movie = open_movie(p, fps=fps, show_progress=False)
+    try:
+        folder = cache_dir(movie.fingerprint) / "scan"
+        out = output_beside(p, ".candidates.csv", cache_dir(movie.fingerprint))
+        cached = None if force else load_scan(folder)
+        if cached is not None and cached.settings and \
+                DetectSettings.from_dict(cached.settings).scan_key() == settings.scan_key() and \
+                len(cached.features["score"]) == movie.n_frames and out.exists():
+            status, features, meta = "skipped", cached.features, cached.meta
+        else:
+            features, meta = compute_features(movie, settings)
+            status = "done"
+        candidates = propose(features, settings, movie.timing)
+        if status == "done":
+            save_scan(ScanResult(features=features, candidates=candidates,
+                                 settings=settings.to_dict(), meta=meta), folder)
+            write_csv(candidate_rows(candidates), out)
+        counts = candidates["kind"].value_counts()
+        return {"frames": movie.n_frames, "duration_s": movie.duration_s, "fps": movie.fps,
+                **{k: int(counts.get(k, 0)) for k in KINDS}, "candidates": len(candidates),
+                "status": status, "candidates_csv": str(out),
+                "notices": "; ".join(movie.notices)}
+    finally:
+        movie.close()
