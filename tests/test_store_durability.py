@@ -303,3 +303,50 @@ def test_marks_in_a_session_never_seeded_survive_a_power_cut(tmp_path, monkeypat
     last = disk.images[-1]
     assert _recover(last, tmp_path / "cut") == acked[-1][1]
     s.close()
+
+
+def test_the_screen_changes_only_after_the_journal_is_synced(tmp_path, monkeypatch):
+    # the review app, keys pressed through Textual's Pilot: at the moment the journal is synced,
+    # the status line must still show the event as it was; right after the key, as decided
+    import asyncio
+
+    from reviewer.movie.base import ArrayMovie, Timing
+    from reviewer.tui.app import ReviewApp
+    from reviewer.tui.keymap import load_keymap
+    from reviewer.tui.labels import load_labels
+
+    folder = tmp_path / "session"
+    folder.mkdir()
+    data = np.random.default_rng(3).integers(900, 1100, size=(200, 24, 32), dtype=np.uint16)
+    movie = ArrayMovie(data, tmp_path / "m.npy", timing=Timing(fps=100.0, source="test"),
+                       fingerprint=FINGERPRINT)
+    s = Session.open(movie.path, FINGERPRINT, override=folder, meta={"frames": 200, "fps": 100.0})
+    s.seed(_candidates(5))
+    app = ReviewApp(movie, s, keymap=load_keymap(None), labels=load_labels(), advance=False,
+                    run_scan=False)
+    seen: list[str] = []  # the status line at each journal sync
+    real_fsync = os.fsync
+
+    def spy(fd):
+        real_fsync(fd)
+        if os.readlink(f"/proc/self/fd/{fd}").endswith(JOURNAL):
+            seen.append(app.status.plain)
+
+    async def run():
+        async with app.run_test(size=(120, 40)) as pilot:
+            await pilot.press("n")
+            await pilot.pause()
+            before = app.status.plain
+            assert "d000000" in before and "candidate" in before
+            monkeypatch.setattr(os, "fsync", spy)
+            await pilot.press("a")
+            await pilot.pause()
+            monkeypatch.setattr(os, "fsync", real_fsync)
+            after = app.status.plain
+            assert "accepted" in after and "d000000" in after
+            assert seen, "no journal fsync while the key was handled"
+            assert seen[0] == before, (seen[0], before)
+            await pilot.press("q")
+
+    asyncio.run(run())
+    s.close()
