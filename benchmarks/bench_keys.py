@@ -5,8 +5,9 @@ tmux server. A tmux control-mode client sends each key and then asks tmux for th
 2 ms until the status line (drawn below the frame, so written after it) shows the change: one sample
 is the time from sending the key to that moment, tmux's relaying included. A press that shows no
 change within the timeout (5 s) counts as a failure: it enters the median and the 90th percentile at
-the timeout value and the failures are counted and printed. Prints median and 90th percentile per
-kind of key and overall, and the overall median's ratio to the 50 ms target.
+the timeout value, the failures are counted and printed, and the exit status is 1 when there were
+any. Prints median and 90th percentile per kind of key and overall, and the overall median's ratio
+to the 50 ms target.
 
 Caches: the movie is scanned once before the UI opens, into REVIEWER_CACHE_DIR (a new folder unless
 the variable is set), so the review opens on a warm cache (the scan is reused, as a user's second
