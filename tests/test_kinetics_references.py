@@ -5,12 +5,14 @@ Nothing here calls the functions the program calls with the same arguments. The 
   the exponential MLE is the mean wait; the gamma MLE equation; the likelihood-ratio test);
 - published tables: chi-square quantiles (NIST/SEMATECH e-Handbook of Statistical Methods,
   §1.3.6.7.4 "Critical values of the chi-square distribution"; values from memory) and exact Poisson
-  limits (Gehrels 1986, ApJ 303:336, Table 1, 0.975 single-sided = 95 % two-sided; from memory);
+  limits (Gehrels 1986, ApJ 303:336, Tables 1 and 2, upper and lower limits at confidence level
+  0.975 each, i.e. 95 % two-sided; from memory);
 - other libraries, each with its own implementation: astropy.stats.poisson_conf_interval
   (frequentist-confidence, i.e. Garwood), lifelines.ExponentialFitter (censoring-aware MLE),
   statsmodels.stats.diagnostic.lilliefors (KS with estimated scale, Lilliefors' tables);
 - the bias-corrected and accelerated bootstrap written out from Efron & Tibshirani, "An
-  Introduction to the Bootstrap" (1993), §14.3 (eqs. 14.10, 14.14, 14.15), on resamples of its own;
+  Introduction to the Bootstrap" (1993), §14.3 (eqs. 14.10, 14.14, 14.15; numbers from memory), on
+  resamples of its own;
 - a Monte Carlo simulation written here (the Poisson CV band).
 
 The program is run as a user runs it: an event table (CSV + JSON sidecar) in, `reviewer kinetics
@@ -98,7 +100,7 @@ def test_count_rate_interval_from_gehrels_table_and_astropy(hand):
     from astropy.stats import poisson_conf_interval
 
     # 10 events in T = 50 s (the sidecar's 20,000 frames at 400 /s): 0.2 /s. Exact 95 % limits of
-    # a Poisson count of 10: 4.795 and 18.390 (Gehrels 1986 Table 1, from memory)
+    # a Poisson count of 10: 4.795 and 18.390 (Gehrels 1986 Tables 2 and 1, from memory)
     assert hand["duration_s"] == pytest.approx(50.0)
     assert hand["count_rate_per_s"] == pytest.approx(0.2, rel=1e-9)
     lo, hi = hand["count_rate_ci95_per_s"]
