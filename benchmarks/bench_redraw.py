@@ -241,6 +241,8 @@ def main(argv: list[str] | None = None) -> int:
     if a.player:
         run_player(a.player, a.seconds)
         return 0
+    print("cache: none involved: frames are invented in memory before timing (no movie file, no "
+          "scan, no reviewer cache); each timed redraw shows a frame not drawn before")
     print(f"(a) headless, {SIZE[0]}x{SIZE[1]} cells, 256x256 px frames, median of {a.frames}:")
     headless = run_headless(a.frames)
     if not a.skip_tmux:

@@ -61,7 +61,11 @@ def rel(a, b):
     return abs(a - b) / abs(b)
 
 
-def test_acceptance_every_figure_against_scipy(tmp_path, capsys):
+def test_wiring_every_figure_reaches_the_json(tmp_path, capsys):
+    # A WIRING test, not a reference check: it repeats the program's own scipy calls (same
+    # functions, arguments and seeds), so it shows that each figure is computed on the selected
+    # events and lands under its --json key, not that the right statistic was chosen. The figures
+    # are checked against independent references in tests/test_kinetics_references.py.
     rows, times = acceptance_rows()
     n_frames = int(round(times[-1] * FPS)) + 120
     path = write_table(tmp_path, rows, frames=n_frames)

@@ -74,10 +74,13 @@ def test_few_intervals_are_not_overstated():
     assert s["reading"].startswith("Too few intervals to tell")
 
 
-def test_gamma_fit_matches_scipy_and_profile_bounds():
+def test_wiring_gamma_fit_and_profile_bounds():
+    # A WIRING test: stats.gamma.fit is the very call the program makes, so this shows the fit
+    # reaches the summary; the gamma fit is checked against the MLE equation worked out by hand in
+    # tests/test_kinetics_references.py
     x = np.random.default_rng(3).gamma(2.5, 0.1, 60)
     s = summarise(np.concatenate([[0.0], np.cumsum(x)]), n_gof=99)
-    shape, _, scale = stats.gamma.fit(x, floc=0)  # scipy.stats reference fit
+    shape, _, scale = stats.gamma.fit(x, floc=0)
     assert s["gamma_shape"] == pytest.approx(shape, rel=1e-3)
     assert s["gamma_scale_s"] == pytest.approx(scale, rel=1e-3)
     lo, hi = gamma_shape_ci95(x, shape)

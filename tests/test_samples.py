@@ -215,3 +215,21 @@ def test_bundled_sample_is_small_and_complete():
     whats = truth["what"].value_counts()
     assert 15 <= whats["layer"] <= 30 and whats["blank"] == 2 and whats["stage_jump"] == 1
     assert whats["particle"] >= 1 and whats["nucleation"] >= 1
+
+
+def test_bundled_sample_plan_and_size_fast(tmp_path):
+    # the CI version of the check above: the sample's ground truth comes from its plan (no frames
+    # drawn), its file size is extrapolated from its first 256 frames written the same way
+    sc = PRESETS["sample"]
+    assert (sc.n_frames, sc.height, sc.width, sc.fps) == (2000, 96, 128, 400.0)
+    whats = plan(sc, growth.SAMPLE_SEED).truth["what"].value_counts()
+    assert 15 <= whats["layer"] <= 30 and whats["blank"] == 2 and whats["stage_jump"] == 1
+    assert whats["particle"] >= 1 and whats["nucleation"] >= 1
+    head = tmp_path / "head.tif"
+    write_movie(head, replace(sc, n_frames=256), growth.SAMPLE_SEED, fps=sc.fps,
+                compression="zlib", dtype="uint8")  # as ensure_sample writes it
+    with tifffile.TiffFile(head) as tf:
+        assert tf.series[0].shape == (256, 96, 128) and tf.series[0].dtype == np.uint8
+        assert tf.imagej_metadata["finterval"] == pytest.approx(1 / 400.0)
+    # 20 MB for the whole sample (the demo's budget), 10 % kept spare: later frames differ
+    assert head.stat().st_size * sc.n_frames / 256 <= 0.9 * 20e6

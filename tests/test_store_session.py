@@ -7,6 +7,7 @@ import json
 import os
 import socket
 from datetime import datetime
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -271,15 +272,110 @@ def test_read_only_movie_folder_puts_the_session_in_the_data_folder(movie, monke
     s.close()
 
 
-@pytest.mark.skipif(os.geteuid() == 0, reason="root ignores folder permissions")
-def test_read_only_movie_folder_really_chmodded(movie):
+NOBODY = 65534  # the unprivileged user and group of most Linux systems (common practice, no source)
+
+
+def _read_only_folder_case(movie) -> None:
     movie.parent.chmod(0o555)
+    with pytest.raises(PermissionError):  # the folder really refuses writes to this user
+        (movie.parent / "probe").write_text("x")
+    s = open_session(movie)
+    assert s.folder == data_root() / "sessions" / "fp-test"
+    s.seed(candidates(2))
+    s.accept("d000000")
+    s.close()
+    assert not (movie.parent / (movie.name + ".review")).exists()
+    s = open_session(movie)
+    assert s.get("d000000").status == "accepted"
+    s.close()
+
+
+def _as_nobody(fn, *args) -> None:
+    """Run fn(*args) in a forked child that has dropped root for uid/gid 65534; raise its error.
+
+    A fork, not a new interpreter: here the interpreter lives under /root (mode 0700), which an
+    unprivileged user cannot execute, so subprocess with preexec_fn=setuid cannot start it. The
+    forked child has every module loaded already (a first run as root imported them all). Skips
+    only where root cannot change its user (no CAP_SETUID), saying so."""
+    import traceback
+
+    r, w = os.pipe()
+    pid = os.fork()
+    if pid == 0:  # the child: never returns into pytest
+        code = 1
+        try:
+            os.close(r)
+            try:
+                os.setgroups([])
+                os.setgid(NOBODY)
+                os.setuid(NOBODY)
+            except PermissionError as exc:  # e.g. a container without CAP_SETUID
+                os.write(w, f"cannot drop root here ({exc})".encode())
+                code = 3
+                raise SystemExit from None
+            assert os.geteuid() == NOBODY
+            fn(*args)
+            code = 0
+        except SystemExit:
+            pass
+        except BaseException:
+            os.write(w, traceback.format_exc().encode())
+        finally:
+            os._exit(code)
+    os.close(w)
+    with os.fdopen(r, "rb") as f:
+        message = f.read().decode()
+    _, status = os.waitpid(pid, 0)
+    code = os.waitstatus_to_exitcode(status)
+    if code == 3:
+        pytest.skip(f"root cannot become user {NOBODY}: {message}")
+    assert code == 0, message
+
+
+def test_read_only_movie_folder_really_chmodded(tmp_path, monkeypatch):
+    """A movie in a folder the user cannot write: the session goes to the data folder. As root
+    (which ignores permissions) the check runs in a child process as user nobody."""
+    if os.geteuid() != 0:
+        movie = tmp_path / "ro" / "platelets.tif"
+        movie.parent.mkdir()
+        movie.write_bytes(b"not read by the store")
+        monkeypatch.setenv("REVIEWER_DATA_DIR", str(tmp_path / "data"))
+        try:
+            _read_only_folder_case(movie)
+        finally:
+            movie.parent.chmod(0o755)
+        return
+    import shutil
+    import tempfile
+
+    # pytest's tmp_path sits under a 0700 folder of root's; nobody needs its own folder in /tmp
+    top = Path(tempfile.mkdtemp(prefix="reviewer-nobody-", dir="/tmp"))
     try:
-        s = open_session(movie)
-        assert s.folder == data_root() / "sessions" / "fp-test"
+        warm = top / "warm" / "platelets.tif"  # a first run as root imports every module needed
+        warm.parent.mkdir()
+        warm.write_bytes(b"x")
+        monkeypatch.setenv("REVIEWER_DATA_DIR", str(top / "warm-data"))
+        s = open_session(warm)
+        s.seed(candidates(2))
+        s.accept("d000000")
         s.close()
+        open_session(warm).close()
+        movie = top / "ro" / "platelets.tif"
+        movie.parent.mkdir()
+        movie.write_bytes(b"not read by the store")
+        for sub in ("ro", "data", "cache", "config"):
+            (top / sub).mkdir(exist_ok=True)
+            os.chown(top / sub, NOBODY, NOBODY)
+        os.chown(movie, NOBODY, NOBODY)
+        os.chmod(top, 0o755)
+        for var, sub in (("REVIEWER_DATA_DIR", "data"), ("REVIEWER_CACHE_DIR", "cache"),
+                         ("REVIEWER_CONFIG_DIR", "config")):
+            monkeypatch.setenv(var, str(top / sub))
+        _as_nobody(_read_only_folder_case, movie)
+        assert (top / "data" / "sessions" / "fp-test").is_dir()
+        assert sorted(os.listdir(top / "ro")) == ["platelets.tif"]
     finally:
-        movie.parent.chmod(0o755)
+        shutil.rmtree(top, ignore_errors=True)
 
 
 def test_override_folder_and_readonly_open(movie, tmp_path):
