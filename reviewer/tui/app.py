@@ -58,6 +58,7 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
         self._ev_dirty = True
         self._position_timer = None
         self._session_closed = False
+        self._unreadable: set[int] = set()  # frames already reported as unreadable
         self.init_actions()
         self.init_guard()
         self.init_scan(scan, run_scan)
@@ -153,8 +154,22 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
 
     def show_frame(self) -> None:
         """Draw the current frame, its mark, the timeline cursor and the status line."""
-        before, after = self.context(self.frame)
-        self.frameview.show(self.movie.frame(self.frame), before=before, after=after)
+        from reviewer.errors import BadInput
+
+        try:
+            image = self.movie.frame(self.frame)
+        except (BadInput, OSError, ValueError) as exc:
+            self.frameview.show_unreadable(f"frame {self.frame}: {exc}")
+            if self.frame not in self._unreadable:
+                self._unreadable.add(self.frame)
+                self.notify(f"frame {self.frame} cannot be read ({exc}); shown as a placeholder",
+                            severity="warning", timeout=8)
+        else:
+            try:
+                before, after = self.context(self.frame)
+            except (BadInput, OSError, ValueError):
+                before = after = None  # the neighbours are damaged: this frame alone
+            self.frameview.show(image, before=before, after=after)
         ev = self.current_event()
         on_it = ev is not None and ev.frame <= self.frame <= max(ev.frame, ev.frame_end or ev.frame)
         if on_it and ev.x is not None and ev.y is not None:
