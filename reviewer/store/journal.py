@@ -41,6 +41,10 @@ class StoreWriteError(OSError):
     """The session could not be saved; the action was not applied."""
 
 
+class ReadOnlySession(RuntimeError):
+    """A change was asked of a session opened read-only; nothing was applied."""
+
+
 def _explain(path: Path, exc: OSError, action: bool = False) -> StoreWriteError:
     if isinstance(exc, StoreWriteError):
         return exc

@@ -41,6 +41,7 @@ from reviewer.store.journal import (
     PREV,
     SNAPSHOT,
     Journal,
+    ReadOnlySession,
     StoreWriteError,
     replace_durably,
     write_json_atomic,
@@ -49,12 +50,8 @@ from reviewer.store.journal import (
 from reviewer.store.lock import LockState, SessionLock
 from reviewer.store.meta import load_meta, merge_meta
 from reviewer.store.replay import load_state, move_aside
+from reviewer.store.reseed import MovieChangeMixin
 from reviewer.store.state import ReviewState
-
-
-class ReadOnlySession(RuntimeError):
-    """A change was asked of a session opened read-only; nothing was applied."""
-
 
 COMPACT_BYTES = 4 << 20  # compact automatically once the journal grows by this much
 RECLAIM_OPTION = "--reclaim-lock"  # the review option that takes over a lock left by a dead process
@@ -80,7 +77,10 @@ def read_only_text(folder: Path, lock: LockState) -> tuple[str, str]:
             f"{lock.info.get('host', '?')}")
 
 
-class Session(ReviewState):
+__all__ = ["ReadOnlySession", "Session", "StoreWriteError"]
+
+
+class Session(MovieChangeMixin, ReviewState):
     """Open with `Session.open(...)`; see the module docstring."""
 
     def __init__(self, folder: Path, readonly: bool) -> None:
@@ -125,11 +125,16 @@ class Session(ReviewState):
         s.meta, s.times_s, notes = load_meta(folder)
         s.notices += notes
         old_fp = s.meta.get("fingerprint")
-        if old_fp and fingerprint and old_fp != fingerprint:
-            s.notices.append(f"{folder}: the movie changed since this session began "
-                             f"(fingerprint {old_fp} -> {fingerprint})")
         try:
             s._load()
+            if old_fp and fingerprint and old_fp != fingerprint and \
+                    not any(c["to"] == fingerprint for c in s.movie_changes):
+                change = {"from": old_fp, "to": fingerprint}
+                if s.readonly:
+                    s._apply({"op": "movie_changed", "t": utc_now(), **change})
+                else:
+                    s._commit("movie_changed", **change)
+            s.notices += [s.movie_change_text(c) for c in s.movie_changes]
             s.meta, s.times_s = merge_meta(s.meta, s.times_s, meta or {}, movie_path, fingerprint,
                                            None if s.readonly else folder)
         except OSError as exc:
@@ -168,7 +173,7 @@ class Session(ReviewState):
         got = load_state(self.folder, live_writer_possible=self.readonly)
         self.notices += got.notices
         for name in ("seeded", "_events", "_sorted", "_undo", "_redo", "_seq", "_position",
-                     "_next_manual"):
+                     "_next_manual", "movie_changes"):
             setattr(self, name, getattr(got.state, name))
         self._snap_seq = got.snapshot_seq
         floor = self._seq

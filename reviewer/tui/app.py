@@ -267,8 +267,11 @@ def make_app(movie, *, fps: float | None = None, keymap: str | None = None,
         meta["detector"] = scan.settings
     session = Session.open(movie.path, movie.fingerprint, override=session_dir, meta=meta,
                            reclaim=reclaim)
-    if scan is not None and not session.seeded:
-        session.seed(scan.candidates)
+    if scan is not None and not session.readonly:
+        if not session.seeded:
+            session.seed(scan.candidates)
+        elif session.needs_reseed:  # the movie changed: candidates from its new scan
+            session.reseed(scan.candidates)
     if play_fps is None:
         play_fps = float(os.environ.get("REVIEWER_PLAY_FPS", "12") or 12)
     return ReviewApp(movie, session, keymap=keys, labels=labels, scan=scan, advance=advance,

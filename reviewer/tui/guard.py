@@ -42,7 +42,25 @@ class GuardMixin:
         lines = []
         if self.session.read_only_why:
             lines.append("READ-ONLY  " + self.session.read_only_why)
+        for change in self.session.movie_changes:
+            key = self.keymap_key("acknowledge")
+            lines.append("MOVIE CHANGED  " + self.session.movie_change_text(change).split(": ", 1)[1]
+                         + (f". Press {key} to acknowledge." if key else "."))
         return lines
+
+    def keymap_key(self, binding_id: str) -> str | None:
+        for spec in self.keymap.specs:
+            if spec.id == binding_id:
+                return spec.display.split()[0] if spec.display else None
+        return None
+
+    def action_acknowledge(self) -> None:
+        if not self.session.movie_changes:
+            self.notify("nothing to acknowledge")
+            return
+        if self.write("acknowledge", self.session.acknowledge_movie_change)[0]:
+            self.update_banner()
+            self.notify("movie change acknowledged")
 
     def update_banner(self) -> None:
         banner = self.query_one("#banner", Banner)

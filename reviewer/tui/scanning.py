@@ -121,6 +121,10 @@ class ScanMixin:
             else:
                 self.write("saving the detector settings", self.session.update_meta,
                            detector=message.result.settings)  # export provenance
+                if self.session.seeded and self.session.needs_reseed:
+                    self.write("re-seeding the candidates", self.session.reseed,
+                               message.result.candidates)
+                    self.update_banner()
                 _, added = self.write("saving the candidates", seed, message.result.candidates)
                 added = added or 0
             self.refresh_events()
