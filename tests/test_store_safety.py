@@ -202,3 +202,36 @@ def test_unwritable_session_folder_opens_read_only_for_nobody(monkeypatch):
         assert not any(data.iterdir())  # and no session started in the data folder
     finally:
         subprocess.run(["rm", "-rf", str(top)], check=False)
+
+
+@pytest.mark.skipif(os.geteuid() != 0, reason="becoming 'nobody' needs root")
+def test_folder_turned_read_only_while_deciding_keeps_every_decision():
+    from reviewer.store.journal import StoreWriteError
+
+    top = Path(tempfile.mkdtemp(prefix="reviewer-nobody-"))
+    try:
+        top.chmod(0o777)
+        folder = top / "session"
+
+        def work():
+            s = Session.open(top / "m.npy", "fp-ro", override=folder,
+                             meta={"frames": 200, "fps": 100.0})
+            s.seed(_candidates(5))
+            s.accept("d000000")
+            folder.chmod(0o555)  # the user (or a mount) makes the folder read-only meanwhile
+            s.reject("d000001")  # the journal is already open: still saved
+            try:
+                s.close()
+            except StoreWriteError as exc:
+                return str(exc)
+            return "closed without an error"
+
+        said = _as_nobody(work)
+        assert "snapshot.json" in said and "Permission denied" in said
+        folder.chmod(0o755)
+        s = Session.open(top / "m.npy", "fp-ro", override=folder)
+        assert not s.readonly  # the lock was freed although it could not be removed
+        assert [e.status for e in s.events][:2] == ["accepted", "rejected"]
+        s.close()
+    finally:
+        subprocess.run(["rm", "-rf", str(top)], check=False)

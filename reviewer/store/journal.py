@@ -97,6 +97,26 @@ def replace_durably(tmp: Path, path: Path) -> None:
     fsync_dir(path.parent)
 
 
+def copy_durably(src: Path, path: Path) -> None:
+    """A separate copy of src at path (temp file, fsync, rename; not a hard link, so damage to one
+    file cannot reach the other)."""
+    import shutil
+
+    tmp = path.with_name(path.name + ".tmp")
+    try:
+        shutil.copyfile(src, tmp)
+        fd = os.open(tmp, os.O_RDONLY)
+        try:
+            os.fsync(fd)
+        finally:
+            os.close(fd)
+    except OSError as exc:
+        with contextlib.suppress(OSError):
+            tmp.unlink()
+        raise _explain(path, exc) from exc
+    replace_durably(tmp, path)
+
+
 def write_json_atomic(path: Path, obj) -> None:
     """Write JSON to path by temp file + fsync + os.replace + folder fsync."""
     replace_durably(write_json_temp(path, obj), path)
@@ -188,24 +208,24 @@ class Journal:
                 kept.append(line)
         body = b"".join(kept)
         tmp = self.path.with_name(self.path.name + ".tmp")
+        try:  # the new descriptor is the file renamed into place: appends can never go astray
+            fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_TRUNC | os.O_APPEND, 0o644)
+        except OSError as exc:
+            raise _explain(self.path, exc) from exc
         try:
-            fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o644)
-            try:
-                view = memoryview(body)
-                while view:
-                    view = view[os.write(fd, view):]
-                os.fsync(fd)
-            finally:
-                os.close(fd)
+            view = memoryview(body)
+            while view:
+                view = view[os.write(fd, view):]
+            os.fsync(fd)
             os.replace(tmp, self.path)
         except OSError as exc:
+            os.close(fd)
             with contextlib.suppress(OSError):
                 tmp.unlink()
             raise _explain(self.path, exc) from exc
         fsync_dir(self.path.parent)
-        new = os.open(self.path, os.O_WRONLY | os.O_APPEND)
         os.close(self.fd)
-        self.fd = new
+        self.fd = fd
         self.size = len(body)
 
     def truncate(self) -> None:

@@ -143,7 +143,10 @@ class SessionLock:
         if self.fd < 0:
             return
         fd, self.fd = self.fd, -1
-        with contextlib.suppress(OSError):
+        try:
             if os.fstat(fd).st_ino == os.stat(self.path).st_ino:
                 self.path.unlink()
+        except OSError:  # a folder turned read-only: an empty lock file is a free one too
+            with contextlib.suppress(OSError):
+                os.ftruncate(fd, 0)
         os.close(fd)

@@ -43,8 +43,8 @@ from reviewer.store.journal import (
     Journal,
     ReadOnlySession,
     StoreWriteError,
+    copy_durably,
     replace_durably,
-    write_json_atomic,
     write_json_temp,
 )
 from reviewer.store.lock import LockState, SessionLock
@@ -390,7 +390,7 @@ class Session(MovieChangeMixin, ReviewState):
             if rotated:
                 self._journal.keep_after(old)
             elif not prev.exists():  # the first snapshot: its copy is the previous one too
-                write_json_atomic(prev, state)
+                copy_durably(snap, prev)
                 self._journal.keep_after(self._seq)
             self._journal_base = self._journal.size
         finally:

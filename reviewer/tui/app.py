@@ -267,11 +267,14 @@ def make_app(movie, *, fps: float | None = None, keymap: str | None = None,
         meta["detector"] = scan.settings
     session = Session.open(movie.path, movie.fingerprint, override=session_dir, meta=meta,
                            reclaim=reclaim)
-    if scan is not None and not session.readonly:
-        if not session.seeded:
-            session.seed(scan.candidates)
-        elif session.needs_reseed:  # the movie changed: candidates from its new scan
-            session.reseed(scan.candidates)
+    if scan is not None:
+        try:
+            if not session.seeded:  # a read-only session holds them in memory only
+                session.seed(scan.candidates)
+            elif session.needs_reseed and not session.readonly:  # the movie changed
+                session.reseed(scan.candidates)
+        except OSError as exc:  # nothing changed; the review opens on what the session has
+            session.notices.append(f"{exc}; the candidates of the scan were not saved")
     if play_fps is None:
         play_fps = float(os.environ.get("REVIEWER_PLAY_FPS", "12") or 12)
     return ReviewApp(movie, session, keymap=keys, labels=labels, scan=scan, advance=advance,
