@@ -99,6 +99,7 @@ class Session(MovieChangeMixin, ReviewState):
         self._deferred: Callable[[], None] | None = None
         self._snap_seq: int | None = None  # seq of snapshot.json as this session knows it
         self._journal_base = 0  # journal size after the last compaction
+        self.close_error: OSError | None = None  # set by a signal saver whose close() failed
 
     @property
     def lock_warning(self) -> str | None:

@@ -229,9 +229,11 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
         try:
             self.session.close()
         except StoreWriteError as exc:
-            self.quit_note = (f"{exc.strerror}; the snapshot was not updated, but every decision "
-                              f"is kept in {self.session.folder / 'journal.jsonl'} and is replayed "
-                              "on the next open")
+            self.quit_note = self.kept_note(exc)
+
+    def kept_note(self, exc: OSError) -> str:
+        return (f"{exc.strerror or exc}; the snapshot was not updated, but every decision is kept "
+                f"in {self.session.folder / 'journal.jsonl'} and is replayed on the next open")
 
     async def action_quit(self) -> None:
         self.close_session()
@@ -240,6 +242,8 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
     def on_signal_exit(self, signum: int) -> None:
         """Called by the store's signal saver (the session is already closed)."""
         self._session_closed = True
+        if self.session.close_error is not None:
+            self.quit_note = self.kept_note(self.session.close_error)
         self.cancel_scan()
         self.exit(return_code=128 + signum)
 
