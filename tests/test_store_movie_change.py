@@ -61,6 +61,9 @@ def test_reseed_keeps_matching_decisions_and_lists_orphans(tmp_path):
         assert "d000001, d000002" in text and not s.needs_reseed
         assert s.get("d000002").source == "orphaned"
         s.close()
+    from reviewer.tui.eventlist import row_cells
+
+    assert row_cells(s.get("d000001"))[2] == "step·orph"  # marked in the UI's event list
     s = _open(tmp_path, "fp-new")
     assert s.acknowledge_movie_change()
     s._journal.close()  # a crash right after: the acknowledgement is in the journal
