@@ -7,7 +7,8 @@ A reader of a live session (export, a read-only UI) reads the journal first, the
 only move forward and the journal always holds every action after ``snapshot.json.prev``, so the
 snapshot read second is at least as new as the one the journal was cut against; the pair is one state
 the session really had when the journal lines after the snapshot's seq run on from it without a gap.
-When they do not (a compaction happened between the two reads), both are read again.
+When they do not (a compaction happened between the two reads), or the journal ends in a line still
+being written, both are read again (a line torn by a crash is accepted, with a notice, after a while).
 
 A snapshot that cannot be read is never used nor overwritten: the writer moves it aside
 (``snapshot.json.damaged-<time>``) and rebuilds from the previous snapshot and the journal; a reader
@@ -88,8 +89,10 @@ def load_state(folder: Path, live_writer_possible: bool) -> Loaded:
         notices: list[str] = []
         damaged: list[Path] = []
         state, snap_seq = _base(folder, notices, damaged)
-        if attempt < tries - 1 and not _runs_on(records, state._seq) and not notes:
-            time.sleep(0.002 * (attempt + 1))
+        torn = cut is not None  # a line being written right now, or left by a crash
+        gap = not _runs_on(records, state._seq) and not notes
+        if attempt < tries - 1 and (torn or gap):
+            time.sleep(0.001 * (attempt + 1))
             continue
         return Loaded(state, snap_seq, records, notes + notices, cut, damaged)
     raise AssertionError("unreachable")
