@@ -2,8 +2,8 @@
 
 - Cache (derived data, safe to delete): ``$REVIEWER_CACHE_DIR`` or ``$XDG_CACHE_HOME/reviewer``
   (default ``~/.cache/reviewer``), one folder per movie fingerprint.
-- Sessions (review decisions): ``<movie>.review/`` beside the movie when that folder is writable, else
-  ``$REVIEWER_DATA_DIR`` or ``$XDG_DATA_HOME/reviewer/sessions/<fingerprint>``.
+- Sessions (review decisions): ``<movie>.review/`` beside the movie when it exists or the movie's folder
+  is writable, else ``$REVIEWER_DATA_DIR`` or ``$XDG_DATA_HOME/reviewer/sessions/<fingerprint>``.
 - Settings (key maps, label sets): ``$REVIEWER_CONFIG_DIR`` or ``$XDG_CONFIG_HOME/reviewer``.
 """
 
@@ -45,18 +45,26 @@ def _writable(folder: Path) -> bool:
 
 
 def session_dir(movie_path: str | os.PathLike, fingerprint: str,
-                override: str | os.PathLike | None = None) -> Path:
-    """The session folder of one movie (created if missing)."""
+                override: str | os.PathLike | None = None, create: bool = True) -> Path:
+    """The session folder of one movie (made if missing when `create`; readers pass False).
+
+    ``<movie>.review/`` beside the movie when it exists (even if it cannot be written: the session
+    then opens read-only, never a blank one elsewhere); else the user data folder's session when one
+    exists; else beside the movie when that folder is writable, else the user data folder."""
     if override is not None:
         path = Path(override).expanduser()
     else:
         movie = Path(movie_path).resolve()
         beside = movie.parent / (movie.name + ".review")
-        if _writable(beside) or (not beside.exists() and _writable(movie.parent)):
+        elsewhere = data_root() / "sessions" / fingerprint
+        if beside.is_dir():
             path = beside
+        elif elsewhere.is_dir() or beside.exists() or not _writable(movie.parent):
+            path = elsewhere
         else:
-            path = data_root() / "sessions" / fingerprint
-    path.mkdir(parents=True, exist_ok=True)
+            path = beside
+    if create:
+        path.mkdir(parents=True, exist_ok=True)
     return path
 
 

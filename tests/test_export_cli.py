@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import os
+import shutil
 
 import numpy as np
 import pandas as pd
@@ -76,6 +77,9 @@ def test_read_only_movie_folder_writes_into_the_session_folder(reviewed, monkeyp
 
 
     monkeypatch.setattr(paths.os, "access", fake)
+    # a movie folder read-only from the start: no <movie>.review/ there (an existing one that cannot
+    # be written opens read-only instead, tests/test_store_safety.py)
+    shutil.rmtree(reviewed.parent / "platelets.npy.review")
     s = Session.open(reviewed, open_movie(reviewed).fingerprint)  # session now in the data folder
     assert s.folder != reviewed.parent / "platelets.npy.review"
     s.add(7, label="layer")

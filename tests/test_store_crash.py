@@ -71,8 +71,12 @@ def test_sigkill_mid_run_keeps_every_fsynced_action(tmp_path):
         proc.wait(timeout=30)
         proc.stdout.close()
     assert done >= 40 and proc.returncode == -signal.SIGKILL
-    s = _open(tmp_path)
-    assert s.lock_warning is None  # the dead process's lock is stale
+    s = _open(tmp_path)  # the dead process's lock is stale: read-only until the user reclaims it
+    assert s.readonly and "--reclaim-lock" in s.read_only_why
+    assert sum(e.status != "candidate" for e in s.events) >= done + 1  # readable meanwhile
+    s.close()
+    s = _open(tmp_path, reclaim=True)
+    assert s.lock_warning is None and not s.readonly
     decided = [e for e in s.events if e.status != "candidate"]
     assert len(decided) >= done + 1  # every action reported as done survived
     for e in decided:  # ... and each is the right decision
@@ -155,10 +159,10 @@ def test_crash_after_rename_before_truncate_replays_nothing_twice(tmp_path, monk
     _decide(s)
     want = _snapshot_of(s)
 
-    def boom(self):
-        raise OSError(5, "simulated crash before truncate")
+    def boom(self, seq):
+        raise OSError(5, "simulated crash before the journal is cut")
 
-    monkeypatch.setattr(journal_mod.Journal, "truncate", boom)
+    monkeypatch.setattr(journal_mod.Journal, "keep_after", boom)
     with pytest.raises(OSError):
         s.compact()
     monkeypatch.undo()
@@ -214,7 +218,7 @@ def test_sigterm_and_sighup_save_and_exit(tmp_path, sig):
     proc.stdout.close()
     folder = tmp_path / "session"
     assert not (folder / "lock").exists()  # closed: lock released
-    assert (folder / "journal.jsonl").read_text() == ""  # compacted into the snapshot
+    assert json.loads((folder / "snapshot.json").read_text())["seq"] == 3  # compacted on the signal
     s = _open(tmp_path)
     assert s.get("d000001").label == "layer" and s.position == 2
     s.close()

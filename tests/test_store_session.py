@@ -80,7 +80,11 @@ def test_every_action_round_trips_through_the_journal(movie):
     again.close()
     third = open_session(movie)  # and from the snapshot written by close()
     assert state(third) == before and third.position == 64
-    assert not (third.folder / "journal.jsonl").read_text()
+    # close() wrote the whole state; the journal keeps only what the previous snapshot lacks
+    assert json.loads((third.folder / "snapshot.json").read_text())["seq"] == 10
+    prev_seq = json.loads((third.folder / "snapshot.json.prev").read_text())["seq"]
+    lines = (third.folder / "journal.jsonl").read_text().splitlines()
+    assert lines and all(json.loads(line)["seq"] > prev_seq for line in lines)
     third.close()
 
 
@@ -222,32 +226,49 @@ def test_full_disk_raises_clearly_and_leaves_state_consistent(movie, monkeypatch
     s.close()
 
 
-def test_lock_warns_second_session_and_is_released(movie):
+def test_second_session_is_read_only_and_the_lock_is_released(movie):
+    from reviewer.store.session import ReadOnlySession
+
     first = open_session(movie)
-    assert first.lock_warning is None
+    assert first.lock_warning is None and not first.readonly
+    first.seed(candidates(2))
     second = open_session(movie)
-    assert second.lock_warning and str(os.getpid()) in second.lock_warning
-    second.seed(candidates(2))  # still read-write
+    assert second.readonly and str(os.getpid()) in second.read_only_why
+    assert "read-only" in second.read_only_why
+    with pytest.raises(ReadOnlySession):
+        second.accept("d000000")
+    first.accept("d000001")  # the writer goes on
     second.close()
     assert (first.folder / "lock").exists()  # the second did not take the first one's lock
     first.close()
     assert not (first.folder / "lock").exists()
     third = open_session(movie)
-    assert third.lock_warning is None
+    assert third.lock_warning is None and third.get("d000001").status == "accepted"
+    assert third.get("d000000").status == "candidate"
     third.close()
 
 
-def test_stale_lock_of_a_dead_process_is_taken_over(movie):
+def _dead_pid() -> int:
     import subprocess
     import sys
 
     dead = subprocess.run([sys.executable, "-c", "import os; print(os.getpid())"],
                           capture_output=True, text=True, check=True)
+    return int(dead.stdout)
+
+
+def test_stale_lock_of_a_dead_process_is_taken_over_only_when_asked(movie):
     folder = session_dir(movie, "fp-test")
-    (folder / "lock").write_text(json.dumps({"pid": int(dead.stdout), "host": socket.gethostname(),
-                                             "started": "2026-01-01T00:00:00Z"}))
+    stale = json.dumps({"pid": _dead_pid(), "host": socket.gethostname(),
+                        "started": "2026-01-01T00:00:00Z"})
+    (folder / "lock").write_text(stale)
     s = open_session(movie)
-    assert s.lock_warning is None
+    assert s.readonly and "no longer running" in s.read_only_why
+    assert "--reclaim-lock" in s.read_only_why
+    s.close()
+    assert (folder / "lock").read_text() == stale  # left as it was
+    s = open_session(movie, reclaim=True)
+    assert s.lock_warning is None and not s.readonly
     assert json.loads((folder / "lock").read_text())["pid"] == os.getpid()
     s.close()
 

@@ -44,9 +44,9 @@ def _wait(pred, what: str, timeout: float = 20.0):
     raise AssertionError(f"timed out waiting for {what}")
 
 
-def _open(sock: str, name: str, movie, env: dict) -> str:
+def _open(sock: str, name: str, movie, env: dict, *options: str) -> str:
     cmd = " ".join(["exec", "env", *(f"{k}={shlex.quote(v)}" for k, v in env.items()),
-                    *map(shlex.quote, REVIEWER), "review", shlex.quote(str(movie))])
+                    *map(shlex.quote, REVIEWER), "review", shlex.quote(str(movie)), *options])
     verb = ["new-session", "-d", "-s", name, "-x", "200", "-y", "60"]
     _tmux(sock, *verb, cmd)
     _wait(lambda: "pending" in _status(sock, name), "the first paint")
@@ -124,7 +124,7 @@ def test_review_in_tmux_then_export(tmp_path):
 
         # SIGTERM (as a system shutdown sends; SIGHUP comes from a dropped SSH link, same path):
         # the app saves, releases its lock and exits by itself.
-        third = _open(sock, "three", movie, env)
+        third = _open(sock, "three", movie, env, "--reclaim-lock")  # the killed one left its lock
         _type(sock, third, "N")
         _type(sock, third, "r")
         pid = int(_tmux(sock, "list-panes", "-t", third, "-F", "#{pane_pid}").split()[0])

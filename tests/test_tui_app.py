@@ -9,6 +9,7 @@ from __future__ import annotations
 import asyncio
 import csv
 import functools
+import os
 
 import numpy as np
 import pandas as pd
@@ -258,17 +259,23 @@ async def test_kinetics_panel_and_playback(tmp_path):
 
 
 @sync
-async def test_second_session_on_the_same_movie_is_warned(tmp_path):
+async def test_second_session_on_the_same_movie_is_read_only_with_a_banner(tmp_path):
     first = _app(tmp_path)  # holds the session lock while it is open
     movie = _movie(tmp_path)
     second = ReviewApp(movie, _session(tmp_path, movie), keymap=load_keymap(),
                        labels=load_labels(), run_scan=False)
-    assert second.session.lock_warning
-    shown: list[str] = []
-    notify = second.notify
-    second.notify = lambda message, **kw: (shown.append(message), notify(message, **kw))[1]
+    assert second.session.readonly
     async with second.run_test(size=SIZE) as pilot:
         await pilot.pause()
-        assert second.session.lock_warning in shown
+        banner = str(second.query_one("#banner").render())
+        assert "READ-ONLY" in banner and f"pid {os.getpid()}" in banner
+        await _press(pilot, "n a")
+        assert _status(second)["d000000"] == "candidate"  # not applied
+        assert second.alert_text.startswith("read-only: accept not applied")
+        assert str(os.getpid()) in second.alert_text
         await second.action_quit()
+    first.session.accept("d000000")  # the writer was never disturbed
     first.session.close()
+    again = Session.open(movie.path, movie.fingerprint, override=tmp_path / "session")
+    assert not again.readonly and again.get("d000000").status == "accepted"
+    again.close()

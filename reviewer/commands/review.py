@@ -18,6 +18,9 @@ def add_review_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--advance", action="store_true",
                    help="after a decision, go on to the next pending candidate")
     p.add_argument("--mouse", action="store_true", help="enable the mouse (off by default)")
+    p.add_argument("--reclaim-lock", action="store_true",
+                   help="take over a session left locked by a reviewer that is no longer running "
+                        "(killed or crashed); without it such a session opens read-only")
 
 
 def register(subparsers) -> None:
@@ -46,13 +49,16 @@ def review(movie, args: argparse.Namespace) -> int:
     from reviewer.tui.app import make_app
 
     app = make_app(movie, fps=args.fps, keymap=args.keymap, session_dir=args.session,
-                   advance=args.advance)
+                   advance=args.advance, reclaim=args.reclaim_lock)
     restore = install_signal_savers(app.session, app.on_signal_exit)
     try:
         app.run(mouse=args.mouse)
     finally:
         restore()
         app.close_session()
+    if app.quit_note:
+        print(f"reviewer: {app.quit_note}", file=sys.stderr)
+        return 2
     code = app.return_code
     return 0 if code is None else int(code)
 

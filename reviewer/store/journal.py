@@ -1,19 +1,21 @@
-"""The journal (JSON lines, fsynced per action) and the snapshot (written by write-then-rename).
+"""The journal (JSON lines, fsynced per action) and the snapshots (written by write-then-rename).
 
 Files in a session folder: ``journal.jsonl`` (one JSON object per action, ``{"seq", "t", "op", ...}``),
-``snapshot.json`` (the full state up to ``"seq"``), ``meta.json``, ``lock``.
+``snapshot.json`` (the full state up to ``"seq"``), ``snapshot.json.prev`` (the snapshot before it),
+``meta.json``, ``lock``. The journal holds every action after the previous snapshot's seq, so the state
+can be rebuilt from ``snapshot.json.prev`` plus the journal when ``snapshot.json`` is damaged.
 
-Compaction and its crash windows (seq numbers only grow; replay skips journal lines whose seq is not
-above the snapshot's, so the journal may safely hold lines the snapshot already contains):
+Compaction (store/session.py) and its crash windows (seq numbers only grow; replay skips journal lines
+whose seq is not above the snapshot's, so the journal may safely hold lines the snapshot contains):
 
 1. Write the state to ``snapshot.json.tmp``, flush, fsync.   Crash here: the old snapshot and the full
    journal are intact; the stray ``.tmp`` is ignored (and overwritten next time).
-2. ``os.replace`` the temp file over ``snapshot.json``, fsync the folder.   Crash before the replace:
-   as in 1. After it: the new snapshot plus the full journal; replay skips the lines it already holds.
-   The folder fsync makes the rename durable before step 3, so a power cut cannot bring back the old
-   snapshot next to an emptied journal.
-3. Truncate the journal to zero length and fsync it.   Crash before or during: as in 2 (a truncate is
-   all-or-nothing for the file length); after: new snapshot, empty journal.
+2. Rename ``snapshot.json`` to ``snapshot.json.prev``.   Crash after it: no ``snapshot.json``; the
+   state is rebuilt from ``.prev`` and the journal, which holds everything after it.
+3. ``os.replace`` the temp file over ``snapshot.json``, fsync the folder.   After it: the new snapshot
+   plus the full journal; replay skips the lines it already holds.
+4. Rewrite the journal without the lines ``.prev`` already holds (temp file, fsync, rename, folder
+   fsync).   A crash before the rename leaves the longer journal, which is still right.
 
 Appends: the line is written with one ``os.write`` on an O_APPEND descriptor, then ``os.fsync``; the
 call returns only after both. A crash mid-write leaves a torn last line: on open it is ignored with a
@@ -32,14 +34,22 @@ from pathlib import Path
 
 JOURNAL = "journal.jsonl"
 SNAPSHOT = "snapshot.json"
+PREV = "snapshot.json.prev"
 
 
 class StoreWriteError(OSError):
     """The session could not be saved; the action was not applied."""
 
 
+class ReadOnlySession(RuntimeError):
+    """A change was asked of a session opened read-only; nothing was applied."""
+
+
 def _explain(path: Path, exc: OSError, action: bool = False) -> StoreWriteError:
-    why = "the disk is full" if exc.errno == errno.ENOSPC else (exc.strerror or str(exc))
+    if isinstance(exc, StoreWriteError):
+        return exc
+    full = exc.errno in (errno.ENOSPC, errno.EFBIG, errno.EDQUOT)
+    why = "the disk is full" if full else (exc.strerror or str(exc))
     text = f"{path}: cannot write ({why})"
     if action:
         text += "; the last action was not applied: free space or fix the folder, then repeat it"
@@ -59,8 +69,9 @@ def fsync_dir(folder: Path) -> None:
         os.close(fd)
 
 
-def write_json_atomic(path: Path, obj) -> None:
-    """Write JSON to path by temp file + fsync + os.replace + folder fsync."""
+def write_json_temp(path: Path, obj) -> Path:
+    """Write JSON to ``<path>.tmp``, flushed and fsynced; returns the temp path (renamed by the
+    caller)."""
     tmp = path.with_name(path.name + ".tmp")
     data = json.dumps(obj, ensure_ascii=False, separators=(",", ":")).encode("utf-8")
     try:
@@ -68,6 +79,16 @@ def write_json_atomic(path: Path, obj) -> None:
             f.write(data)
             f.flush()
             os.fsync(f.fileno())
+    except OSError as exc:
+        with contextlib.suppress(OSError):
+            tmp.unlink()
+        raise _explain(path, exc) from exc
+    return tmp
+
+
+def replace_durably(tmp: Path, path: Path) -> None:
+    """os.replace the temp file over path, then fsync the folder (the temp is removed on failure)."""
+    try:
         os.replace(tmp, path)
     except OSError as exc:
         with contextlib.suppress(OSError):
@@ -76,14 +97,29 @@ def write_json_atomic(path: Path, obj) -> None:
     fsync_dir(path.parent)
 
 
-def read_snapshot(folder: Path) -> tuple[dict | None, list[str]]:
-    path = folder / SNAPSHOT
+def copy_durably(src: Path, path: Path) -> None:
+    """A separate copy of src at path (temp file, fsync, rename; not a hard link, so damage to one
+    file cannot reach the other)."""
+    import shutil
+
+    tmp = path.with_name(path.name + ".tmp")
     try:
-        return json.loads(path.read_bytes()), []
-    except FileNotFoundError:
-        return None, []
-    except (OSError, ValueError) as exc:
-        return None, [f"{path}: unreadable snapshot ignored ({exc}); replaying the journal alone"]
+        shutil.copyfile(src, tmp)
+        fd = os.open(tmp, os.O_RDONLY)
+        try:
+            os.fsync(fd)
+        finally:
+            os.close(fd)
+    except OSError as exc:
+        with contextlib.suppress(OSError):
+            tmp.unlink()
+        raise _explain(path, exc) from exc
+    replace_durably(tmp, path)
+
+
+def write_json_atomic(path: Path, obj) -> None:
+    """Write JSON to path by temp file + fsync + os.replace + folder fsync."""
+    replace_durably(write_json_temp(path, obj), path)
 
 
 def read_journal(path: Path) -> tuple[list[dict], list[str], int | None]:
@@ -155,6 +191,42 @@ class Journal:
                 self._repair = False
             raise _explain(self.path, exc, action=True) from exc
         self.size += len(line)
+
+    def keep_after(self, seq: int) -> None:
+        """Rewrite the journal without its lines up to seq (temp file, fsync, rename), then append
+        to the new file. On failure the longer journal stays, which is still right."""
+        with open(self.path, "rb") as f:
+            data = f.read()
+        kept = []
+        for line in data.splitlines(keepends=True):
+            try:
+                rec = json.loads(line)
+            except ValueError:
+                continue
+            if line.endswith(b"\n") and isinstance(rec, dict) and isinstance(rec.get("seq"), int) \
+                    and rec["seq"] > seq:
+                kept.append(line)
+        body = b"".join(kept)
+        tmp = self.path.with_name(self.path.name + ".tmp")
+        try:  # the new descriptor is the file renamed into place: appends can never go astray
+            fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_TRUNC | os.O_APPEND, 0o644)
+        except OSError as exc:
+            raise _explain(self.path, exc) from exc
+        try:
+            view = memoryview(body)
+            while view:
+                view = view[os.write(fd, view):]
+            os.fsync(fd)
+            os.replace(tmp, self.path)
+        except OSError as exc:
+            os.close(fd)
+            with contextlib.suppress(OSError):
+                tmp.unlink()
+            raise _explain(self.path, exc) from exc
+        fsync_dir(self.path.parent)
+        os.close(self.fd)
+        self.fd = fd
+        self.size = len(body)
 
     def truncate(self) -> None:
         """Empty the journal (after a snapshot holding everything in it is durable)."""

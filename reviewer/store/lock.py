@@ -1,22 +1,36 @@
-"""A session lock: a small JSON file naming the process (pid, host, start time) that holds the session.
+"""The session lock: one writer per session folder.
 
-It only warns: a second session on the same folder is told who holds it (the caller decides whether to
-go on). A lock left by a dead process on this host is taken over silently.
+The lock is the file ``lock`` in the session folder, held with an exclusive ``flock`` for as long as the
+session is open and naming its holder (pid, host, start time). The kernel drops a flock when its
+process dies, so a lock that is held means a live writer; a lock file whose flock is free but that
+still names another process was left behind by a writer that ended without closing (killed, crashed).
+
+`acquire` never takes a lock from anyone by itself:
+
+- free (no file, or an empty one): taken ("owned");
+- held by a live process (here or on another host): "busy";
+- left behind by a process that is no longer running on this host: "stale", taken over only when the
+  caller asks (`reclaim=True`, the user's explicit choice);
+- the folder cannot be written: "unwritable".
+
+The caller opens the session read-only in every case but "owned".
 """
 
 from __future__ import annotations
 
 import contextlib
+import errno
+import fcntl
 import json
 import os
 import socket
 import uuid
+from dataclasses import dataclass, field
 from pathlib import Path
 
 from reviewer.store.events import utc_now
 
 LOCK = "lock"
-_HELD: set[str] = set()  # lock files held by Session objects of this process
 
 
 def _pid_alive(pid: int) -> bool:
@@ -35,70 +49,104 @@ def _pid_alive(pid: int) -> bool:
         return True
 
 
+@dataclass
+class LockState:
+    state: str  # "owned", "busy", "stale" or "unwritable"
+    info: dict = field(default_factory=dict)  # what the lock file says about its holder
+    why: str = ""  # for "unwritable": the system's reason
+
+    def holder(self) -> str:
+        i = self.info
+        text = f"pid {i.get('pid', '?')} on {i.get('host', '?')}"
+        return text + (f", since {i['started']}" if i.get("started") else "")
+
+
+def _parse(data: bytes) -> dict:
+    try:
+        info = json.loads(data.decode("utf-8"))
+    except (UnicodeDecodeError, ValueError):
+        return {"damaged": True}
+    return info if isinstance(info, dict) else {"damaged": True}
+
+
 class SessionLock:
     def __init__(self, folder: Path) -> None:
         self.path = folder / LOCK
         self.token = uuid.uuid4().hex
-        self.owned = False
+        self.fd = -1
+
+    @property
+    def owned(self) -> bool:
+        return self.fd >= 0
 
     def read(self) -> dict | None:
+        """What the lock file says (None: no lock file)."""
         try:
-            info = json.loads(self.path.read_text(encoding="utf-8"))
-            return info if isinstance(info, dict) else {}
+            data = self.path.read_bytes()
         except FileNotFoundError:
             return None
-        except (OSError, ValueError):
-            return {}  # unreadable lock: treat as stale
-
-    def _holder_alive(self, info: dict) -> bool:
-        if not info:
-            return False
-        if info.get("host") != socket.gethostname():
-            return True  # cannot tell for another machine: assume it lives
-        pid = info.get("pid")
-        if not isinstance(pid, int):
-            return False
-        if pid == os.getpid():
-            return str(self.path) in _HELD
-        return _pid_alive(pid)
-
-    def acquire(self) -> str | None:
-        """Take the lock; return a warning (and do not take it) when a live session holds it."""
-        info = self.read()
-        if info is not None and self._holder_alive(info):
-            return (f"{self.path.parent}: this session is already open in another reviewer "
-                    f"(pid {info.get('pid')} on {info.get('host')}, since {info.get('started')}); "
-                    "decisions made in both at once can be lost")
-        mine = json.dumps({"pid": os.getpid(), "host": socket.gethostname(), "started": utc_now(),
-                           "token": self.token})
-        try:
-            if info is None:  # no lock: create it exclusively, so two starters cannot both win
-                try:
-                    fd = os.open(self.path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o644)
-                except FileExistsError:
-                    return self.acquire()
-                with os.fdopen(fd, "w", encoding="utf-8") as f:
-                    f.write(mine)
-            else:  # a stale lock: replace it in one step
-                tmp = self.path.with_name(f"{LOCK}.{self.token}.tmp")
-                try:
-                    tmp.write_text(mine, encoding="utf-8")
-                    os.replace(tmp, self.path)
-                finally:
-                    with contextlib.suppress(OSError):
-                        tmp.unlink()
         except OSError:
-            return None  # a folder that cannot hold a lock: nothing to warn about
-        self.owned = True
-        _HELD.add(str(self.path))
-        return None
+            return {"damaged": True}
+        return _parse(data) if data.strip() else None
+
+    def acquire(self, reclaim: bool = False) -> LockState:
+        for _ in range(20):  # retried only when the file was replaced under us
+            try:
+                fd = os.open(self.path, os.O_RDWR | os.O_CREAT, 0o644)
+            except OSError as exc:
+                if exc.errno in (errno.EACCES, errno.EPERM, errno.EROFS):
+                    return LockState("unwritable", self.read() or {}, exc.strerror or str(exc))
+                raise
+            try:
+                fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+            except OSError:
+                os.close(fd)
+                return LockState("busy", self.read() or {})
+            try:
+                same = os.fstat(fd).st_ino == os.stat(self.path).st_ino
+            except FileNotFoundError:
+                same = False
+            if not same:  # the holder released (unlinked) it between our open and our flock
+                os.close(fd)
+                continue
+            state = self._check(fd, reclaim)
+            if state.state != "owned":
+                os.close(fd)
+            return state
+        return LockState("busy", self.read() or {})
+
+    def _check(self, fd: int, reclaim: bool) -> LockState:
+        data = b""
+        with contextlib.suppress(OSError):
+            data = os.pread(fd, 1 << 16, 0)
+        info = _parse(data) if data.strip() else {}
+        if info and not info.get("damaged") and not reclaim:
+            pid = info.get("pid")
+            here = info.get("host") == socket.gethostname()
+            if not here or (isinstance(pid, int) and pid != os.getpid() and _pid_alive(pid)):
+                # flock free but the holder may live: another host whose file system does not share
+                # flocks, or a reviewer of an older version; never taken over by ourselves
+                return LockState("busy", info)
+            return LockState("stale", info)
+        mine = json.dumps({"pid": os.getpid(), "host": socket.gethostname(), "started": utc_now(),
+                           "token": self.token}).encode("utf-8")
+        try:
+            os.ftruncate(fd, 0)
+            os.pwrite(fd, mine, 0)
+            os.fsync(fd)
+        except OSError as exc:
+            return LockState("unwritable", info, exc.strerror or str(exc))
+        self.fd = fd
+        return LockState("owned", info)
 
     def release(self) -> None:
-        if not self.owned:
+        if self.fd < 0:
             return
-        self.owned = False
-        _HELD.discard(str(self.path))
-        info = self.read()
-        if info and info.get("token") == self.token:
-            with contextlib.suppress(OSError):
+        fd, self.fd = self.fd, -1
+        try:
+            if os.fstat(fd).st_ino == os.stat(self.path).st_ino:
                 self.path.unlink()
+        except OSError:  # a folder turned read-only: an empty lock file is a free one too
+            with contextlib.suppress(OSError):
+                os.ftruncate(fd, 0)
+        os.close(fd)

@@ -1,6 +1,6 @@
 """A review session: the events of one movie and every decision on them, kept safe on disk.
 
-State = snapshot.json + the journal lines after it (see store/journal.py for the file formats and the
+State = snapshot.json (or snapshot.json.prev) + the journal lines after it (see store/journal.py for the file formats and the
 crash windows). Every mutating call builds its journal record first, appends it (written + fsynced),
 and only then applies it in memory, through the same code that replays the journal on open; so what is
 on disk and what is in memory cannot drift apart, and a failed write leaves the state as it was.
@@ -10,12 +10,15 @@ reopen. Seeding and the position are not undoable. Seeding (often 10^4-10^5 cand
 by writing the snapshot at once instead of a huge journal line; a "seed" record is still understood on
 replay.
 
-Read-only sessions (`readonly=True`, for export) take no lock and write nothing; they may be seeded in
-memory. A signal saver (store/signals.py) that fires during an action waits for it (`busy`, `defer`).
+One writer per session folder (store/lock.py): a second reviewer, a lock left by a dead one, or a
+folder that cannot be written make the session read-only (`read_only_why`). Read-only sessions take no
+lock and write nothing; they may be seeded in memory; they read the files consistently while a writer
+runs (store/replay.py). A signal saver (store/signals.py) that fires during an action waits for it (`busy`, `defer`).
 """
 
 from __future__ import annotations
 
+import os
 from collections.abc import Callable
 from pathlib import Path
 
@@ -35,20 +38,49 @@ from reviewer.store.events import (
 )
 from reviewer.store.journal import (
     JOURNAL,
+    PREV,
     SNAPSHOT,
     Journal,
-    read_journal,
-    read_snapshot,
-    write_json_atomic,
+    ReadOnlySession,
+    StoreWriteError,
+    copy_durably,
+    replace_durably,
+    write_json_temp,
 )
-from reviewer.store.lock import SessionLock
+from reviewer.store.lock import LockState, SessionLock
 from reviewer.store.meta import load_meta, merge_meta
+from reviewer.store.replay import load_state, move_aside
+from reviewer.store.reseed import MovieChangeMixin
 from reviewer.store.state import ReviewState
 
-COMPACT_BYTES = 4 << 20  # compact automatically once the journal passes this size
+COMPACT_BYTES = 4 << 20  # compact automatically once the journal grows by this much
+RECLAIM_OPTION = "--reclaim-lock"  # the review option that takes over a lock left by a dead process
 
 
-class Session(ReviewState):
+def read_only_text(folder: Path, lock: LockState) -> tuple[str, str]:
+    """Why a session opened read-only and how to go on: (the UI's banner, a short form for one line)."""
+    if lock.state == "unwritable":
+        return (f"{folder}: this session folder cannot be written ({lock.why}). Opened read-only: "
+                "browse and export, no decisions. To go on deciding, copy the folder elsewhere "
+                "and open it with --session DIR.",
+                "the session folder cannot be written (copy it and use --session DIR)")
+    if lock.state == "stale":
+        return (f"{folder}: left locked by a reviewer that is no longer running "
+                f"({lock.holder()}). Opened read-only; nothing was lost. If no other reviewer "
+                f"uses it, reopen with {RECLAIM_OPTION} to go on deciding.",
+                f"locked by a reviewer no longer running (pid {lock.info.get('pid', '?')}); "
+                f"reopen with {RECLAIM_OPTION}")
+    return (f"{folder}: open for writing in another reviewer ({lock.holder()}). This one is "
+            "read-only: browse and export, no decisions. To decide here, quit the other one "
+            "and reopen.",
+            f"the session is held by pid {lock.info.get('pid', '?')} on "
+            f"{lock.info.get('host', '?')}")
+
+
+__all__ = ["ReadOnlySession", "Session", "StoreWriteError"]
+
+
+class Session(MovieChangeMixin, ReviewState):
     """Open with `Session.open(...)`; see the module docstring."""
 
     def __init__(self, folder: Path, readonly: bool) -> None:
@@ -56,7 +88,8 @@ class Session(ReviewState):
         self.folder = folder
         self.readonly = readonly
         self.notices: list[str] = []
-        self.lock_warning: str | None = None
+        self.read_only_why: str | None = None  # set when a writer had to open read-only
+        self.read_only_short: str | None = None  # the same in a few words
         self.meta: dict = {}
         self.times_s: np.ndarray | None = None
         self._journal: Journal | None = None
@@ -64,55 +97,88 @@ class Session(ReviewState):
         self._closed = False
         self._busy = 0
         self._deferred: Callable[[], None] | None = None
+        self._snap_seq: int | None = None  # seq of snapshot.json as this session knows it
+        self._journal_base = 0  # journal size after the last compaction
+        self.close_error: OSError | None = None  # set by a signal saver whose close() failed
+
+    @property
+    def lock_warning(self) -> str | None:
+        return self.read_only_why
 
     # ---- opening -------------------------------------------------------------------------
     @classmethod
     def open(cls, movie_path, fingerprint: str, *, override=None, meta: dict | None = None,
-             readonly: bool = False) -> Session:
-        """Open (or start) the session of a movie. readonly: no lock, no writes (for export)."""
+             readonly: bool = False, reclaim: bool = False) -> Session:
+        """Open (or start) the session of a movie.
+
+        readonly: no lock, no writes, no folder made (for export). Otherwise the session takes the
+        folder's lock; when another reviewer holds it, when it was left by one that died (unless
+        reclaim, the user's explicit choice) or when the folder cannot be written, the session opens
+        read-only with `read_only_why` saying why and how to go on.
+        """
         try:
-            folder = session_dir(movie_path, fingerprint, override)
+            folder = session_dir(movie_path, fingerprint, override, create=not readonly)
         except OSError as exc:
             raise BadInput(f"{override or movie_path}: cannot make the session folder ({exc})") from exc
         s = cls(folder, readonly)
+        if not readonly:
+            s._take_lock(reclaim)
         s.meta, s.times_s, notes = load_meta(folder)
         s.notices += notes
         old_fp = s.meta.get("fingerprint")
-        if old_fp and fingerprint and old_fp != fingerprint:
-            s.notices.append(f"{folder}: the movie changed since this session began "
-                             f"(fingerprint {old_fp} -> {fingerprint})")
         try:
+            s._load()
+            if old_fp and fingerprint and old_fp != fingerprint and \
+                    not any(c["to"] == fingerprint for c in s.movie_changes):
+                change = {"from": old_fp, "to": fingerprint}
+                if s.readonly:
+                    s._apply({"op": "movie_changed", "t": utc_now(), **change})
+                else:
+                    s._commit("movie_changed", **change)
+            s.notices += [s.movie_change_text(c) for c in s.movie_changes]
             s.meta, s.times_s = merge_meta(s.meta, s.times_s, meta or {}, movie_path, fingerprint,
-                                           None if readonly else folder)
-            cut = s._replay()
-            if not readonly:
-                s._lock = SessionLock(folder)
-                s.lock_warning = s._lock.acquire()
-                s._journal = Journal(folder / JOURNAL, cut_to=cut)
+                                           None if s.readonly else folder)
         except OSError as exc:
-            if s._lock is not None:
-                s._lock.release()
-            raise BadInput(f"{folder}: cannot use the session folder "
-                           f"({exc.strerror or exc}); choose another with --session") from exc
+            if s.readonly:
+                raise BadInput(f"{folder}: cannot read the session ({exc.strerror or exc})") from exc
+            s._give_up_writing(LockState("unwritable", why=exc.strerror or str(exc)))
+            s.meta, s.times_s = merge_meta(s.meta, s.times_s, meta or {}, movie_path, fingerprint,
+                                           None)
         s._retime()
         return s
 
-    def update_meta(self, **values) -> None:
-        """Record movie facts or detector settings (keys of store.meta.KEYS) in meta.json, written
-        atomically; a read-only session only updates its memory."""
-        self.meta, self.times_s = merge_meta(self.meta, self.times_s, values, self.meta.get("movie"),
-                                             self.meta.get("fingerprint", ""),
-                                             None if self.readonly else self.folder)
+    def _take_lock(self, reclaim: bool) -> None:
+        self._lock = SessionLock(self.folder)
+        if not os.access(self.folder, os.W_OK | os.X_OK):
+            state = LockState("unwritable", self._lock.read() or {}, "permission denied")
+        else:
+            try:
+                state = self._lock.acquire(reclaim)
+            except OSError as exc:
+                raise BadInput(f"{self.folder}: cannot use the session folder "
+                               f"({exc.strerror or exc}); choose another with --session") from exc
+        if state.state != "owned":
+            self._give_up_writing(state)
 
-    def _replay(self) -> int | None:
-        snap, notes = read_snapshot(self.folder)
-        self.notices += notes
-        if snap:
-            self._load_snapshot(snap)
-        records, notes, cut = read_journal(self.folder / JOURNAL)
-        self.notices += notes
+    def _give_up_writing(self, state: LockState) -> None:
+        if self._journal is not None:
+            self._journal.close()
+            self._journal = None
+        if self._lock is not None:
+            self._lock.release()
+        self.readonly = True
+        self.read_only_why, self.read_only_short = read_only_text(self.folder, state)
+
+    def _load(self) -> None:
+        """Rebuild the state from the files (consistently while another process may write)."""
+        got = load_state(self.folder, live_writer_possible=self.readonly)
+        self.notices += got.notices
+        for name in ("seeded", "_events", "_sorted", "_undo", "_redo", "_seq", "_position",
+                     "_next_manual", "movie_changes"):
+            setattr(self, name, getattr(got.state, name))
+        self._snap_seq = got.snapshot_seq
         floor = self._seq
-        for rec in records:
+        for rec in got.records:
             seq = rec.get("seq")
             if not isinstance(seq, int) or seq <= floor:
                 continue
@@ -122,14 +188,30 @@ class Session(ReviewState):
                 self.notices.append(f"{self.folder / JOURNAL}: action {seq} ({rec.get('op')}) "
                                     f"could not be replayed and was skipped ({exc})")
             self._seq = max(self._seq, seq)
-        return cut
+        if self.readonly:
+            return
+        for path in got.damaged:  # never overwritten: kept under another name, and the user told
+            target = move_aside(path)
+            self.notices.append(f"{path}: moved aside to {target.name} (kept for inspection)")
+        self._journal = Journal(self.folder / JOURNAL, cut_to=got.cut)
+        self._journal_base = self._journal.size
+        if got.damaged:
+            self.compact()  # a good snapshot again at once
+
+    def update_meta(self, **values) -> None:
+        """Record movie facts or detector settings (keys of store.meta.KEYS) in meta.json, written
+        atomically; a read-only session only updates its memory."""
+        self.meta, self.times_s = merge_meta(self.meta, self.times_s, values, self.meta.get("movie"),
+                                             self.meta.get("fingerprint", ""),
+                                             None if self.readonly else self.folder)
 
     def _commit(self, op: str, **fields) -> None:
         """Journal one action (fsynced), then apply it in memory."""
         if self._closed:
             raise RuntimeError(f"{self.folder}: the session is closed")
         if self.readonly and op != "seed":
-            raise RuntimeError(f"{self.folder}: the session was opened read-only")
+            raise ReadOnlySession(f"{self.folder}: the session is open read-only; "
+                                  f"{op} was not applied")
         rec = {"seq": self._seq + 1, "t": utc_now(), "op": op, **fields}
         self._busy += 1
         try:
@@ -137,8 +219,13 @@ class Session(ReviewState):
                 self._journal.append(rec)
             self._seq += 1
             self._apply(rec)
-            if self._journal is not None and self._journal.size > COMPACT_BYTES:
-                self.compact()
+            if self._journal is not None and \
+                    self._journal.size - self._journal_base > COMPACT_BYTES:
+                try:
+                    self.compact()
+                except StoreWriteError as exc:  # the action itself is safe in the journal
+                    self.notices.append(f"{exc}; every action stays in the journal")
+                    self._journal_base = self._journal.size
         finally:
             self._busy -= 1
         self._run_deferred()
@@ -281,18 +368,39 @@ class Session(ReviewState):
 
     # ---- saving --------------------------------------------------------------------------
     def compact(self) -> None:
-        """Write the whole state to snapshot.json (atomically), then empty the journal."""
+        """Write the whole state to snapshot.json; the old one becomes snapshot.json.prev and the
+        journal keeps only what came after it (see store/journal.py for the steps)."""
         if self.readonly or self._closed or self._journal is None:
             return
+        if self._snap_seq == self._seq and (self.folder / SNAPSHOT).exists():
+            return  # nothing new since the snapshot
         self._busy += 1
         try:
-            write_json_atomic(self.folder / SNAPSHOT, self.snapshot_state())
-            self._journal.truncate()
+            snap, prev = self.folder / SNAPSHOT, self.folder / PREV
+            state = self.snapshot_state()
+            tmp = write_json_temp(snap, state)
+            rotated = self._snap_seq is not None and snap.exists()
+            try:
+                if rotated:
+                    os.replace(snap, prev)
+            except OSError as exc:
+                tmp.unlink(missing_ok=True)
+                raise StoreWriteError(exc.errno, f"{snap}: cannot write ({exc.strerror})") from exc
+            replace_durably(tmp, snap)
+            old, self._snap_seq = self._snap_seq, self._seq
+            if rotated:
+                self._journal.keep_after(old)
+            elif not prev.exists():  # the first snapshot: its copy is the previous one too
+                copy_durably(snap, prev)
+                self._journal.keep_after(self._seq)
+            self._journal_base = self._journal.size
         finally:
             self._busy -= 1
 
     def close(self) -> None:
-        """Compact, release the lock. Safe to call twice."""
+        """Compact, release the lock. Safe to call twice. If the snapshot cannot be written, every
+        action is still in the journal (replayed on the next open); the error is raised after the
+        lock is released."""
         if self._closed:
             return
         try:

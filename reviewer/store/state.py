@@ -25,6 +25,7 @@ class ReviewState:
         self._seq = 0
         self._position = 0
         self._next_manual = 1
+        self.movie_changes: list[dict] = []  # movie changes not yet acknowledged by the user
 
     def _load_snapshot(self, snap: dict) -> None:
         self._put_rows(snap.get("columns", list(FIELDS)), snap.get("events", []))
@@ -34,6 +35,7 @@ class ReviewState:
         self.seeded = bool(snap.get("seeded", False))
         self._undo = list(snap.get("undo", []))
         self._redo = list(snap.get("redo", []))
+        self.movie_changes = [dict(c) for c in snap.get("movie_changes", [])]
 
     def _apply(self, rec: dict) -> None:
         op = rec["op"]
@@ -42,6 +44,11 @@ class ReviewState:
             self.seeded = True
         elif op == "position":
             self._position = int(rec["frame"])
+        elif op == "movie_changed":
+            self.movie_changes.append({"from": rec["from"], "to": rec["to"], "t": rec.get("t"),
+                                       "reseeded": False, "kept": 0, "orphaned": []})
+        elif op == "acknowledge":
+            self.movie_changes = []
         elif op == "undo":
             if not self._undo or self._undo[-1]["seq"] != rec["of"]:
                 raise ValueError(f"nothing to undo matches action {rec['of']}")
@@ -122,5 +129,6 @@ class ReviewState:
         return {"format": 1, "seq": self._seq, "position": self._position,
                 "next_manual": self._next_manual, "seeded": self.seeded, "columns": list(FIELDS),
                 "events": list(map(_ROW, self.events)),
-                "undo": self._undo[-UNDO_LIMIT:], "redo": self._redo}
+                "undo": self._undo[-UNDO_LIMIT:], "redo": self._redo,
+                "movie_changes": self.movie_changes}
 

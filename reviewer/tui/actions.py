@@ -108,32 +108,35 @@ class ReviewActions(PlaybackMixin):
         else:
             self.show_frame()
 
-    def action_accept(self) -> None:
-        if (ev := self._target()) is not None:
-            self.session.accept(ev.event_id)
+    def _decide(self, what: str, method: str, *args) -> None:
+        if (ev := self._target()) is not None and \
+                self.write(what, getattr(self.session, method), ev.event_id, *args)[0]:
             self._after_change()
 
+    def action_accept(self) -> None:
+        self._decide("accept", "accept")
+
     def action_reject(self) -> None:
-        if (ev := self._target()) is not None:
-            self.session.reject(ev.event_id)
-            self._after_change()
+        self._decide("reject", "reject")
 
     def action_label(self, k: int) -> None:
         if k > len(self.labels):
             self.notify(f"no label {k}: the label set has {len(self.labels)}", severity="warning")
             return
-        if (ev := self._target()) is not None:
-            self.session.set_label(ev.event_id, self.labels[k - 1])
-            self._after_change()
+        self._decide(f"label {k}", "set_label", self.labels[k - 1])
 
     def action_mark(self) -> None:
-        ev = self.session.add(self.frame)
+        ok, ev = self.write("mark", self.session.add, self.frame)
+        if not ok:
+            return
         self.current_id = ev.event_id
         self._after_change(decided=False)
 
     def _nudge(self, delta: int) -> None:
         if (ev := self._target()) is not None:
-            ev = self.session.nudge(ev.event_id, delta)
+            ok, ev = self.write("move", self.session.nudge, ev.event_id, delta)
+            if not ok:
+                return
             self.refresh_events()
             self.go(ev.frame, jumped_to=ev.event_id)
 
@@ -146,6 +149,9 @@ class ReviewActions(PlaybackMixin):
     def action_reject_global(self) -> None:
         from reviewer.tui.screens import ConfirmScreen
 
+        if self.session.readonly:
+            self.write("reject all 'global'", self.session.reject_kind, "global")  # says why not
+            return
         n = sum(1 for e in self.session.events if e.kind == "global" and e.status == "candidate")
         if not n:
             self.notify("no pending 'global' candidates")
@@ -153,7 +159,9 @@ class ReviewActions(PlaybackMixin):
 
         def done(yes: bool | None) -> None:
             if yes:
-                count = self.session.reject_kind("global")
+                ok, count = self.write("reject all 'global'", self.session.reject_kind, "global")
+                if not ok:
+                    return
                 self.notify(f"rejected {count} 'global' candidates (u undoes)")
                 self._after_change(decided=False)
 
@@ -161,7 +169,11 @@ class ReviewActions(PlaybackMixin):
                                        "(blanked frames, beam and stage jumps)?"), done)
 
     def _history(self, redo: bool) -> None:
-        if (self.session.redo if redo else self.session.undo)():
+        ok, done = self.write("redo" if redo else "undo",
+                              self.session.redo if redo else self.session.undo)
+        if not ok:
+            return
+        if done:
             self._after_change(decided=False)
         else:
             self.notify(f"nothing to {'redo' if redo else 'undo'}")
@@ -241,14 +253,33 @@ class ReviewActions(PlaybackMixin):
         from reviewer.store.export import export_events
 
         out = self.export_path()
+        source = self.export_source()
         try:
             try:
-                csv_path, json_path = export_events(self.session, out, movie=self.movie)
+                csv_path, json_path = export_events(source, out, movie=self.movie)
             except OSError:  # the movie's folder refused: the session folder, as `export` does
                 out = self.session.folder / out.name
-                csv_path, json_path = export_events(self.session, out, movie=self.movie)
+                csv_path, json_path = export_events(source, out, movie=self.movie)
         except (BadInput, OSError) as exc:
             self.notify(f"export failed: {exc}", severity="error", timeout=10)
             return
-        self.notify(f"exported {len(self.session.events)} events to {csv_path} (+ {json_path.name})",
+        self.notify(f"exported {len(source.events)} events to {csv_path} (+ {json_path.name})",
                     timeout=8)
+
+    def export_source(self):
+        """What `e` exports: this session; when read-only, the session as its writer has it now
+        (read again, consistently), unless nothing is on disk yet."""
+        if not self.session.readonly:
+            return self.session
+        from reviewer.errors import BadInput
+        from reviewer.store.session import Session
+
+        try:
+            fresh = Session.open(self.movie.path, self.movie.fingerprint,
+                                 override=self.session.folder, readonly=True)
+        except BadInput:
+            return self.session
+        if not fresh.seeded and not fresh.events:
+            return self.session
+        fresh.meta = {**self.session.meta, **fresh.meta}
+        return fresh

@@ -7,6 +7,7 @@ background scan in tui/scanning.py.
 
 from __future__ import annotations
 
+import contextlib
 import os
 from pathlib import Path
 from typing import ClassVar
@@ -19,6 +20,7 @@ from textual.widgets import Footer, ProgressBar
 
 from reviewer.tui import keymap as km
 from reviewer.tui.actions import ReviewActions
+from reviewer.tui.guard import AlertLine, Banner, GuardMixin
 from reviewer.tui.labels import load_labels
 from reviewer.tui.scanning import ScanMixin
 from reviewer.tui.status import StatusLine
@@ -28,7 +30,7 @@ CONTEXT_FRAMES = 12  # frames averaged before / after for the what-changed and a
 POSITION_SAVE_S = 2.0  # the position is journaled this long after the cursor stops
 
 
-class ReviewApp(ScanMixin, ReviewActions, App):
+class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
     """Review one movie's events. Use make_app() to build one."""
 
     CSS_PATH = "app.tcss"
@@ -56,7 +58,9 @@ class ReviewApp(ScanMixin, ReviewActions, App):
         self._ev_dirty = True
         self._position_timer = None
         self._session_closed = False
+        self._unreadable: set[int] = set()  # frames already reported as unreadable
         self.init_actions()
+        self.init_guard()
         self.init_scan(scan, run_scan)
 
     # ---- layout ---------------------------------------------------------------------------------
@@ -65,11 +69,13 @@ class ReviewApp(ScanMixin, ReviewActions, App):
         from reviewer.tui.frameview import FrameView
         from reviewer.tui.timeline import Timeline
 
+        yield Banner(id="banner")
         with Horizontal(id="body"):
             yield FrameView(id="frame")
             yield EventList(id="events")
         yield Timeline(id="timeline")
         yield ProgressBar(id="scanbar", total=self.movie.n_frames, show_eta=True)
+        yield AlertLine(id="alert")
         yield StatusLine(id="status")
         yield Footer()
 
@@ -79,15 +85,14 @@ class ReviewApp(ScanMixin, ReviewActions, App):
         self.timeline = self.query_one("#timeline")
         self.eventlist = self.query_one("#events")
         self.status = self.query_one("#status", StatusLine)
+        self.update_banner()
+        self.clear_alert()
         self.start_scan()
         self.refresh_events()
         self.current_id = self.event_near(self.frame)
         self.show_frame()
         for note in [*getattr(self.movie, "notices", []), *self.session.notices]:
             self.notify(note, severity="warning", timeout=8)
-        if self.session.lock_warning:
-            self.notify(self.session.lock_warning, title="Another session", severity="error",
-                        timeout=15)
         self.check_size()
 
     def on_timeline_seek(self, message) -> None:
@@ -149,8 +154,22 @@ class ReviewApp(ScanMixin, ReviewActions, App):
 
     def show_frame(self) -> None:
         """Draw the current frame, its mark, the timeline cursor and the status line."""
-        before, after = self.context(self.frame)
-        self.frameview.show(self.movie.frame(self.frame), before=before, after=after)
+        from reviewer.errors import BadInput
+
+        try:
+            image = self.movie.frame(self.frame)
+        except (BadInput, OSError, ValueError) as exc:
+            self.frameview.show_unreadable(f"frame {self.frame}: {exc}")
+            if self.frame not in self._unreadable:
+                self._unreadable.add(self.frame)
+                self.notify(f"frame {self.frame} cannot be read ({exc}); shown as a placeholder",
+                            severity="warning", timeout=8)
+        else:
+            try:
+                before, after = self.context(self.frame)
+            except (BadInput, OSError, ValueError):
+                before = after = None  # the neighbours are damaged: this frame alone
+            self.frameview.show(image, before=before, after=after)
         ev = self.current_event()
         on_it = ev is not None and ev.frame <= self.frame <= max(ev.frame, ev.frame_end or ev.frame)
         if on_it and ev.x is not None and ev.y is not None:
@@ -189,18 +208,32 @@ class ReviewApp(ScanMixin, ReviewActions, App):
         self._position_timer = self.set_timer(POSITION_SAVE_S, self.save_position)
 
     def save_position(self) -> None:
-        if not self._session_closed:
-            self.session.set_position(self.frame)
+        if not self._session_closed and not self.session.readonly:
+            self.write("saving the position", self.session.set_position, self.frame)
 
     # ---- leaving --------------------------------------------------------------------------------
     def close_session(self) -> None:
-        """Journal the position, compact and unlock (every decision is already on disk)."""
+        """Journal the position, compact and unlock (every decision is already on disk). When the
+        folder refuses, `quit_note` says what was kept."""
+        from reviewer.store.journal import StoreWriteError
+
         if self._session_closed:
             return
         self.cancel_scan()
-        self.session.set_position(self.frame)
         self._session_closed = True
-        self.session.close()
+        if self.session.readonly:
+            self.session.close()
+            return
+        with contextlib.suppress(StoreWriteError):  # only the position would be lost
+            self.session.set_position(self.frame)
+        try:
+            self.session.close()
+        except StoreWriteError as exc:
+            self.quit_note = self.kept_note(exc)
+
+    def kept_note(self, exc: OSError) -> str:
+        return (f"{exc.strerror or exc}; the snapshot was not updated, but every decision is kept "
+                f"in {self.session.folder / 'journal.jsonl'} and is replayed on the next open")
 
     async def action_quit(self) -> None:
         self.close_session()
@@ -209,13 +242,16 @@ class ReviewApp(ScanMixin, ReviewActions, App):
     def on_signal_exit(self, signum: int) -> None:
         """Called by the store's signal saver (the session is already closed)."""
         self._session_closed = True
+        if self.session.close_error is not None:
+            self.quit_note = self.kept_note(self.session.close_error)
         self.cancel_scan()
         self.exit(return_code=128 + signum)
 
 
 def make_app(movie, *, fps: float | None = None, keymap: str | None = None,
              session_dir: str | os.PathLike | None = None, advance: bool = False,
-             run_scan: bool = True, play_fps: float | None = None) -> ReviewApp:
+             run_scan: bool = True, play_fps: float | None = None,
+             reclaim: bool = False) -> ReviewApp:
     """Open everything the review needs; BadInput for any bad file (before the screen opens)."""
     from reviewer.store.session import Session
 
@@ -233,9 +269,16 @@ def make_app(movie, *, fps: float | None = None, keymap: str | None = None,
             "height": movie.height, "width": movie.width}
     if scan is not None:
         meta["detector"] = scan.settings
-    session = Session.open(movie.path, movie.fingerprint, override=session_dir, meta=meta)
-    if scan is not None and not session.seeded:
-        session.seed(scan.candidates)
+    session = Session.open(movie.path, movie.fingerprint, override=session_dir, meta=meta,
+                           reclaim=reclaim)
+    if scan is not None:
+        try:
+            if not session.seeded:  # a read-only session holds them in memory only
+                session.seed(scan.candidates)
+            elif session.needs_reseed and not session.readonly:  # the movie changed
+                session.reseed(scan.candidates)
+        except OSError as exc:  # nothing changed; the review opens on what the session has
+            session.notices.append(f"{exc}; the candidates of the scan were not saved")
     if play_fps is None:
         play_fps = float(os.environ.get("REVIEWER_PLAY_FPS", "12") or 12)
     return ReviewApp(movie, session, keymap=keys, labels=labels, scan=scan, advance=advance,

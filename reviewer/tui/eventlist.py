@@ -42,12 +42,14 @@ def _num(value: object, fmt: str) -> str:
 
 
 def row_cells(event: object) -> list[str]:
-    """The displayed text of one event: frame, time, kind, score, status, label."""
+    """The displayed text of one event: frame, time, kind, score, status, label. A decision whose
+    event a new scan of a changed movie no longer finds shows "·orph" after its kind."""
     frame = getattr(event, "frame", None)
     return [
         "" if frame is None else str(int(frame)),
         _num(getattr(event, "time_s", None), ".4f"),
-        str(getattr(event, "kind", "") or ""),
+        str(getattr(event, "kind", "") or "")
+        + ("·orph" if getattr(event, "source", None) == "orphaned" else ""),
         _num(getattr(event, "score", None), ".3g"),
         str(getattr(event, "status", "") or ""),
         str(getattr(event, "label", "") or ""),

@@ -62,6 +62,7 @@ class FrameView(Widget):
         self._mark: tuple[float, float] | None = None
         self._strips: list[Strip] | None = None
         self._built_size: tuple[int, int] | None = None
+        self.unreadable: str | None = None  # why the frame could not be shown (placeholder drawn)
 
     # ----- state -------------------------------------------------------------------------------
     @property
@@ -110,8 +111,30 @@ class FrameView(Widget):
             raise ValueError(f"frame must be 2-D, got shape {frame.shape}")
         if self._frame is None or self._frame.shape != frame.shape:
             self._zoom, self._centre = 1.0, None
+        self.unreadable = None
         self._frame, self._before, self._after = frame, _stack(before), _stack(after)
         self._new_view()
+
+    def show_unreadable(self, why: str) -> None:
+        """Draw a hatched placeholder saying why, instead of a frame that could not be read."""
+        self.unreadable = " ".join(str(why).split())
+        self._invalidate()
+
+    def _placeholder(self, rows: int, cols: int) -> list[Strip]:
+        hatch = Style(color="grey50", bgcolor="grey15")
+        label = Style(color="white", bgcolor="dark_red", bold=True)
+        text = f" UNREADABLE  {self.unreadable} "[: max(cols - 2, 0)]
+        out = []
+        for y in range(rows):
+            line = "".join("╱" if (x + y) % 4 == 0 else " " for x in range(cols))
+            if y == rows // 2 and text:
+                left = max((cols - len(text)) // 2, 0)
+                segs = [Segment(line[:left], hatch), Segment(text, label),
+                        Segment(line[left + len(text):], hatch)]
+            else:
+                segs = [Segment(line, hatch)]
+            out.append(Strip(segs, cols))
+        return out
 
     def set_mark(self, x: float | None, y: float | None = None) -> None:
         """Mark a spot in frame pixels; ``set_mark(None)`` removes it."""
@@ -259,6 +282,8 @@ class FrameView(Widget):
         return [Segment(g, style) for g in MARK_GLYPHS]
 
     def _build(self, rows: int, cols: int) -> list[Strip]:
+        if self.unreadable is not None:
+            return self._placeholder(rows, cols)
         system = self.system
         canvas, place = self.canvas(rows, cols)
         palette = "change" if self._mode == "change" else "grey"

@@ -114,8 +114,19 @@ class ScanMixin:
         if self.scores is not None:
             self.timeline.set_scores(self.scores, n_frames=self.movie.n_frames)
         if not self._session_closed:
-            self.session.update_meta(detector=message.result.settings)  # export provenance
-            added = self.session.seed(message.result.candidates)
+            seed = self.session.seed
+            if self.session.readonly:  # candidates in memory only
+                self.session.update_meta(detector=message.result.settings)
+                added = seed(message.result.candidates)
+            else:
+                self.write("saving the detector settings", self.session.update_meta,
+                           detector=message.result.settings)  # export provenance
+                if self.session.seeded and self.session.needs_reseed:
+                    self.write("re-seeding the candidates", self.session.reseed,
+                               message.result.candidates)
+                    self.update_banner()
+                _, added = self.write("saving the candidates", seed, message.result.candidates)
+                added = added or 0
             self.refresh_events()
             if self.current_id is None:
                 self.current_id = self.event_near(self.frame)

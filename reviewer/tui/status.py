@@ -39,6 +39,8 @@ class StatusLine(Widget):
             t.append(event.status, _STATUS_STYLE.get(event.status, ""))
             if event.label:
                 t.append(f" '{event.label}'", "italic")
+            if getattr(event, "source", None) == "orphaned":
+                t.append(" orphaned (not in the new scan)", "bold magenta")
         t.append(f" │ {extras.get('pending', 0)} pending")
         for key in ("mode", "play", "scan"):
             if extras.get(key):
