@@ -283,13 +283,10 @@ def test_each_snapshot_is_fsynced_before_its_rename_and_the_folder_after(tmp_pat
         assert emptied is None or dirsync < emptied, "journal emptied before the rename was durable"
 
 
-@pytest.mark.xfail(strict=True, reason="the store never fsyncs the folder after creating "
-                   "journal.jsonl; only a later snapshot's folder fsync makes its entry durable")
 def test_marks_in_a_session_never_seeded_survive_a_power_cut(tmp_path, monkeypatch):
     # events marked by hand before (or without) any scan: the journal is a new file, so its folder
     # entry must be durable too, not only its bytes (fsync(2): "an explicit fsync() on a file
     # descriptor for the directory is also needed"). Known gap, reported to the store's owner;
-    # strict xfail: the day it is fixed this test says so and the mark comes off.
     folder = tmp_path / "session"
     folder.mkdir()
     disk = Disk(folder, monkeypatch)
