@@ -97,13 +97,13 @@ def _inside(path: Path, folder: Path) -> bool:
 
 
 def guard(outputs: Iterable[Path | tuple[Path, str]], inputs: Iterable[Input],
-          folders: Iterable[Input] = (), sessions: Iterable[str | os.PathLike] = ()) -> None:
-    """Refuse (BadInput) any output that is an input, a file of a session (in `sessions` or any
-    other session folder), inside one of `folders` (e.g. a folder movie), a folder itself, or in a
-    folder that does not exist.
+          sessions: Iterable[str | os.PathLike] = ()) -> None:
+    """Refuse (BadInput) any output that is one of `inputs` or inside one that is a folder (a folder
+    movie, the scan cache), a file of a session (in `sessions` or any other session folder), a
+    folder itself, or in a folder that does not exist or cannot be written (`WriteFailed`).
 
     `outputs` are paths or (path, what it is) pairs, e.g. (Path("e.json"), "sidecar of e.csv")."""
-    inputs, folders, sessions = list(inputs), list(folders), [Path(s) for s in sessions]
+    inputs, sessions = list(inputs), [Path(s) for s in sessions]
     for item in outputs:
         out, what = (item, "") if isinstance(item, os.PathLike | str) else item
         out = Path(out)
@@ -114,9 +114,8 @@ def guard(outputs: Iterable[Path | tuple[Path, str]], inputs: Iterable[Input],
                     f" {printable(str(path))}"
                 raise BadInput(f"{name}: is {role}{also}; refusing to overwrite it "
                                "(choose another output name)")
-        for role, folder in folders:
-            if Path(folder).is_dir() and _inside(out, folder):
-                raise BadInput(f"{name}: inside {role} {printable(str(folder))}; refusing to "
+            if Path(path).is_dir() and _inside(out, path):
+                raise BadInput(f"{name}: inside {role} {printable(str(path))}; refusing to "
                                "write there (choose another output folder)")
         if _session_file(out, sessions):
             raise BadInput(f"{name}: named like a file of the review session there; refusing to write it "

@@ -89,8 +89,8 @@ def run(args: argparse.Namespace) -> int:
         folder = cache / "scan" if cache is not None else None
         out = Path(args.output) if args.output else output_beside(
             args.movie, ".candidates.csv", cache or Path(args.movie).resolve().parent)
-        guard([out], movie_files(movie, args.movie),
-              [("the scan cache", folder)] if folder is not None else [])
+        guard([out], movie_files(movie, args.movie)
+              + ([("the scan cache", folder)] if folder is not None else []))
         cached = None if args.force or folder is None else load_scan(folder)
         if cached is not None and cached.settings and \
                 DetectSettings.from_dict(cached.settings).scan_key() == settings.scan_key() and \
