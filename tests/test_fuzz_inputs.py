@@ -102,7 +102,7 @@ def _descriptor_case(rng: random.Random, folder: Path, i: int) -> tuple[dict, li
     given = rng.choice(["run.raw", "run.raw.json"])
     argv = ["scan", given, "-o", "out.csv"] if rng.random() < 0.3 else ["info", given, "--json"]
     names = ["run.raw", "out.csv"]
-    if isinstance(desc, dict) and desc.get("file") is not None:
+    if isinstance(desc, dict) and "file" in desc:  # the data file the descriptor names
         value = str(desc["file"])
         names.append(os.path.basename(value.rstrip("/")) or value)
     facts = {"size": len(data), "desc": text}
