@@ -125,9 +125,16 @@ def guard(outputs: Iterable[Path | tuple[Path, str]], inputs: Iterable[Input],
         parent = Path(os.path.realpath(out)).parent
         if not parent.is_dir():
             raise BadInput(f"{name}: folder {printable(str(out.parent))} does not exist")
+        _refuse_protected(out, name)
         if not os.access(parent, os.W_OK | os.X_OK):  # before any long work; an OSError as well,
             raise WriteFailed(f"{name}: cannot write (folder {printable(str(out.parent))} is "
                               "not writable)")  # so callers may fall back to another folder
+
+
+def _refuse_protected(path: Path, name: str) -> None:
+    """A write-protected file stays protected, although a rename could replace it."""
+    if os.path.exists(path) and not os.access(path, os.W_OK):
+        raise WriteFailed(f"{name}: cannot write (the file is write-protected)")
 
 
 _WHY = {errno.ENOSPC: "the disk is full", errno.EDQUOT: "the disk quota is exceeded",
@@ -166,6 +173,8 @@ def replacing(*paths: str | os.PathLike) -> Iterator[list[Path]]:
     is a symlink is written through: the file it points to is replaced, the link stays."""
     shown = [Path(p) for p in paths]  # the names the user gave, for messages
     targets = [Path(os.path.realpath(p)) for p in paths]
+    for p in shown:
+        _refuse_protected(p, printable(str(p)))
     temps: list[Path] = []
     try:
         for t in targets:

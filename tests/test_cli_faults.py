@@ -73,6 +73,17 @@ def test_output_into_a_read_only_folder_is_one_line(place, argv):
     assert _leftovers(folder / "ro") == []
 
 
+def test_a_write_protected_output_file_is_not_replaced(place):
+    folder, preexec, why, env = place
+    if preexec is False:
+        pytest.skip(why)
+    (folder / "kept.csv").write_bytes(b"mine\r\n")
+    os.chmod(folder / "kept.csv", 0o444)
+    r = run("scan", "m.npy", "-o", "kept.csv", cwd=folder, preexec=preexec, env=env)
+    assert_refused(r, "kept.csv", "write-protected")
+    assert (folder / "kept.csv").read_bytes() == b"mine\r\n"
+
+
 def test_an_unwritable_cache_folder_is_a_notice_and_the_scan_still_written(place):
     folder, preexec, why, env = place
     if preexec is False:
