@@ -3,12 +3,14 @@
 from __future__ import annotations
 
 import argparse
+import contextlib
 import importlib
+import os
 import pkgutil
 import sys
 
 from reviewer import __version__
-from reviewer.errors import BadInput
+from reviewer.errors import PRINTABLE, BadInput, printable
 
 # Order in `reviewer --help`; modules not listed here are appended alphabetically.
 ORDER = ("demo", "info", "scan", "review", "export", "kinetics")
@@ -21,10 +23,18 @@ def _command_modules() -> list[str]:
     return [n for n in ORDER if n in found] + sorted(found.difference(ORDER))
 
 
+class Parser(argparse.ArgumentParser):
+    """Usage errors as one line on stderr and exit 2, like every other bad input."""
+
+    def error(self, message: str):
+        self.exit(2, printable(f"{self.prog}: {' '.join(message.split())} "
+                               f"(see {self.prog} --help)") + "\n")
+
+
 def build_parser(only: str | None = None) -> argparse.ArgumentParser:
     """The argument parser; with `only`, just that subcommand's module is imported (fast start-up:
     `reviewer info` need not load pandas or scipy for the other commands)."""
-    parser = argparse.ArgumentParser(
+    parser = Parser(
         prog="reviewer",
         description="Find, confirm and time-stamp growth events in long microscopy movies.",
     )
@@ -45,7 +55,35 @@ def _requested(argv: list[str]) -> str | None:
     return None
 
 
+def _subject(args: argparse.Namespace) -> str:
+    """The file a command works on, to name when an error does not say which file it was."""
+    for name in ("movie", "events", "output"):
+        if getattr(args, name, None):
+            return str(getattr(args, name))
+    return "reviewer"
+
+
+def _failure(exc: BaseException, args: argparse.Namespace) -> str:
+    """One line for an error that escaped the command: the file, then what went wrong."""
+    if isinstance(exc, OSError):
+        from reviewer.outputs import reason
+
+        where = exc.filename if exc.filename is not None else _subject(args)
+        return f"{os.fsdecode(where)}: {reason(exc)}"
+    if isinstance(exc, UnicodeError):
+        return f"{_subject(args)}: text that is not valid UTF-8 ({exc.__class__.__name__})"
+    return f"{_subject(args)}: not enough memory for this input (try a smaller part of it)"
+
+
+def _safe_streams() -> None:
+    """Printing a file name that is not UTF-8 must not crash: such bytes come out as \\xNN."""
+    for stream in (sys.stdout, sys.stderr):
+        with contextlib.suppress(AttributeError, ValueError, OSError):
+            stream.reconfigure(errors=PRINTABLE)
+
+
 def main(argv: list[str] | None = None) -> int:
+    _safe_streams()
     argv = list(sys.argv[1:] if argv is None else argv)
     debug = "--debug" in argv  # accepted anywhere on the line
     if debug:
@@ -61,13 +99,18 @@ def main(argv: list[str] | None = None) -> int:
     except BadInput as exc:
         if args.debug:
             raise
-        print(f"reviewer: {exc}", file=sys.stderr)
+        print(f"reviewer: {printable(str(exc))}", file=sys.stderr)
+        return 2
+    except BrokenPipeError:
+        return 0
+    except (OSError, UnicodeError, MemoryError) as exc:
+        if args.debug:
+            raise
+        print(f"reviewer: {printable(_failure(exc, args))}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         print("reviewer: interrupted", file=sys.stderr)
         return 130
-    except BrokenPipeError:
-        return 0
 
 
 if __name__ == "__main__":

@@ -3,6 +3,10 @@
 from __future__ import annotations
 
 import argparse
+import math
+import sys
+
+from reviewer.errors import BadInput, printable
 
 
 def positive_float(text: str) -> float:
@@ -28,3 +32,54 @@ def open_movie_from_args(args: argparse.Namespace):
     from reviewer.movie import open_movie
 
     return open_movie(args.movie, fps=args.fps)
+
+
+# Frame rates outside this range are refused, from --fps and from a movie's metadata alike: below one
+# frame in 11.6 days or above ten million frames a second is a wrong value, not a recording (common
+# practice, no source: electron-microscope cameras run at 1e-3 to about 1e5 frames/s).
+FPS_RANGE = (1e-6, 1e7)
+
+
+def _fps_problem(fps: float) -> str | None:
+    lo, hi = FPS_RANGE
+    if not math.isfinite(fps) or not lo <= fps <= hi:
+        return f"{fps:g} frames/s is outside {lo:g} to {hi:g}"
+    return None
+
+
+def check_timing(movie) -> None:
+    """BadInput when the movie's frame rate (from --fps or its metadata) is absurd, or its frame
+    times are not finite and in order."""
+    import numpy as np
+
+    timing = movie.timing
+    where = "--fps" if timing.source == "--fps" else f"{printable(str(movie.path))}: {timing.source}"
+    if timing.fps is not None and (why := _fps_problem(float(timing.fps))):
+        raise BadInput(f"{where}: {why}" + ("" if timing.source == "--fps" else
+                                            "; give the right rate with --fps"))
+    times = timing.times_s
+    if times is not None and len(times) and (not np.all(np.isfinite(times))
+                                             or np.any(np.diff(times) < 0)):
+        raise BadInput(f"{where}: frame times are not finite and increasing; give a rate with --fps")
+
+
+def show_notices(movie) -> None:
+    """The movie's notices (truncation, colour, single image, ...) on stderr, as every command that
+    opens a movie prints them."""
+    for note in movie.notices:
+        print(f"reviewer: notice: {printable(str(note))}", file=sys.stderr)
+
+
+def open_checked(args: argparse.Namespace, notices: bool = True):
+    """open_movie_from_args, then the frame-rate check and (unless notices=False) the notices."""
+    if args.fps is not None and (why := _fps_problem(args.fps)):
+        raise BadInput(f"--fps: {why}")
+    movie = open_movie_from_args(args)
+    try:
+        check_timing(movie)
+    except BadInput:
+        movie.close()
+        raise
+    if notices:
+        show_notices(movie)
+    return movie

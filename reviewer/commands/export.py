@@ -6,8 +6,8 @@ import argparse
 import sys
 from pathlib import Path
 
-from reviewer.commands._common import add_movie_arguments, open_movie_from_args
-from reviewer.errors import BadInput
+from reviewer.commands._common import add_movie_arguments, open_checked
+from reviewer.errors import printable
 from reviewer.paths import output_beside
 from reviewer.store.export import export_events, parse_statuses
 from reviewer.store.table import STATUSES
@@ -47,7 +47,7 @@ def run(args: argparse.Namespace) -> int:
     from reviewer.store.session import Session
 
     statuses = parse_statuses(args.status)
-    movie = open_movie_from_args(args)
+    movie = open_checked(args)
     try:
         timing = movie.timing
         meta = {"frames": movie.n_frames, "fps": timing.fps, "times_s": timing.times_s,
@@ -55,23 +55,20 @@ def run(args: argparse.Namespace) -> int:
         session = Session.open(movie.path, movie.fingerprint, override=args.session, meta=meta,
                                readonly=True)
         for note in session.notices:
-            print(f"reviewer: {note}", file=sys.stderr)
+            print(f"reviewer: {printable(str(note))}", file=sys.stderr)
         if not session.seeded and not session.events:
             _seed_from_scan(session, movie)
         out = Path(args.output) if args.output else output_beside(movie.path, ".events.csv", session.folder)
         try:
             csv_path, json_path = export_events(session, out, statuses, movie=movie)
-        except OSError as exc:
+        except OSError:  # WriteFailed: one line naming the file, nothing changed
             if args.output:
-                raise BadInput(f"{out}: cannot write ({exc.strerror or exc})") from exc
+                raise
             out = session.folder / out.name  # the movie's folder refused: use the session folder
-            try:
-                csv_path, json_path = export_events(session, out, statuses, movie=movie)
-            except OSError as exc2:
-                raise BadInput(f"{out}: cannot write ({exc2.strerror or exc2})") from exc2
+            csv_path, json_path = export_events(session, out, statuses, movie=movie)
         n = sum(1 for e in session.events if e.status in statuses)
-        print(f"wrote {n} events ({', '.join(statuses)}) to {csv_path}")
-        print(f"provenance in {json_path}")
+        print(f"wrote {n} events ({', '.join(statuses)}) to {printable(str(csv_path))}")
+        print(f"provenance in {printable(str(json_path))}")
         if not session.events:
             print("note: this movie has no reviewed or detected events yet", file=sys.stderr)
     finally:

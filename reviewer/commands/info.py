@@ -3,10 +3,9 @@
 from __future__ import annotations
 
 import argparse
-import json
-import sys
 
-from reviewer.commands._common import add_movie_arguments, open_movie_from_args
+from reviewer.commands._common import add_movie_arguments, open_checked, show_notices
+from reviewer.outputs import json_text
 
 
 def register(subparsers) -> None:
@@ -43,15 +42,14 @@ def text_lines(d: dict) -> list[str]:
 
 
 def run(args: argparse.Namespace) -> int:
-    movie = open_movie_from_args(args)
+    movie = open_checked(args, notices=False)
     try:
         d = movie.describe()
+        if args.json:
+            print(json_text(d))
+        else:
+            print("\n".join(text_lines(d)))
+            show_notices(movie)
     finally:
         movie.close()
-    if args.json:
-        print(json.dumps(d))
-    else:
-        print("\n".join(text_lines(d)))
-        for note in d["notices"]:
-            print(f"reviewer: notice: {note}", file=sys.stderr)
     return 0

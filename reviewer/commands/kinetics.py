@@ -4,11 +4,13 @@ from __future__ import annotations
 
 import argparse
 import json
+from pathlib import Path
 
 import numpy as np
 
 from reviewer.commands._common import positive_float
 from reviewer.errors import BadInput
+from reviewer.outputs import guard, replacing, table_files
 
 STATUS_CHOICES = ("accepted", "rejected", "candidate")
 
@@ -95,6 +97,9 @@ def run(args: argparse.Namespace) -> int:
     from reviewer.kinetics.read import select_events
     from reviewer.kinetics.report import render
 
+    if args.plot:
+        roi = [("the region file", Path(args.roi))] if args.roi else []
+        guard([Path(args.plot)], table_files(args.events) + roi)
     df = read_events(args.events)
     sel = select_events(df, args.label, args.status)
     info = df.attrs.get("movie", {})
@@ -136,9 +141,10 @@ def run(args: argparse.Namespace) -> int:
                  for (_, p), g in zip(parts, result["groups"], strict=True)]
                 if parts is not None else [(what, sel["time_s"].to_numpy(float), result)])
         try:
-            plot_groups(args.plot, rows)
-        except (OSError, ValueError) as exc:
-            raise BadInput(f"{args.plot}: cannot write the plot ({exc})") from None
+            with replacing(args.plot) as (tmp,):
+                plot_groups(tmp, rows)
+        except ValueError as exc:
+            raise BadInput(f"{args.plot}: cannot draw the plot ({exc})") from None
     if args.json:
         print(json.dumps(result, indent=2, allow_nan=False, ensure_ascii=False))
     else:

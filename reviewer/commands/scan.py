@@ -9,8 +9,9 @@ from pathlib import Path
 
 import pandas as pd
 
-from reviewer.commands._common import add_movie_arguments, open_movie_from_args, positive_float
-from reviewer.errors import BadInput
+from reviewer.commands._common import add_movie_arguments, open_checked, positive_float
+from reviewer.errors import printable
+from reviewer.outputs import guard, movie_files, opened, reason, replacing
 
 
 def register(subparsers) -> None:
@@ -53,6 +54,20 @@ def _num(v) -> float | None:
     return None if v != v else v
 
 
+def _cache_folder(fingerprint: str) -> Path | None:
+    """The movie's cache folder, or None (with a notice) when it cannot be made: the scan then runs
+    without keeping its results."""
+    from reviewer.paths import cache_dir, cache_root
+
+    try:
+        return cache_dir(fingerprint)
+    except OSError as exc:
+        print(f"reviewer: notice: cannot use the cache folder {printable(str(cache_root()))} "
+              f"({reason(exc)}); the scan is not kept (set REVIEWER_CACHE_DIR to a writable folder)",
+              file=sys.stderr)
+        return None
+
+
 def run(args: argparse.Namespace) -> int:
     from reviewer.detect import (
         DetectSettings,
@@ -63,19 +78,20 @@ def run(args: argparse.Namespace) -> int:
         propose,
         save_scan,
     )
-    from reviewer.paths import cache_dir, output_beside
+    from reviewer.paths import output_beside
     from reviewer.progress import Progress
     from reviewer.store.table import write_csv
 
     settings = DetectSettings(sensitivity=args.sensitivity)
-    movie = open_movie_from_args(args)
+    movie = open_checked(args)
     try:
-        folder = cache_dir(movie.fingerprint) / "scan"
-        out = Path(args.output) if args.output else output_beside(args.movie, ".candidates.csv",
-                                                                     cache_dir(movie.fingerprint))
-        if out.parent and not out.parent.is_dir():
-            raise BadInput(f"{out}: folder does not exist")
-        cached = None if args.force else load_scan(folder)
+        cache = _cache_folder(movie.fingerprint)
+        folder = cache / "scan" if cache is not None else None
+        out = Path(args.output) if args.output else output_beside(
+            args.movie, ".candidates.csv", cache or Path(args.movie).resolve().parent)
+        guard([out], movie_files(movie, args.movie)
+              + ([("the scan cache", folder)] if folder is not None else []))
+        cached = None if args.force or folder is None else load_scan(folder)
         if cached is not None and cached.settings and \
                 DetectSettings.from_dict(cached.settings).scan_key() == settings.scan_key() and \
                 len(cached.features["score"]) == movie.n_frames:
@@ -98,12 +114,19 @@ def run(args: argparse.Namespace) -> int:
         candidates = propose(features, settings, movie.timing)
         result = ScanResult(features=features, candidates=candidates,
                             settings=settings.to_dict(), meta=meta)
-        save_scan(result, folder)
-        write_csv(candidate_rows(candidates), out)
+        if folder is not None:
+            try:
+                save_scan(result, folder)
+            except OSError as exc:
+                print(f"reviewer: notice: the scan could not be kept in the cache "
+                      f"{printable(str(folder))} ({reason(exc)}); the review will scan again",
+                      file=sys.stderr)
+        with replacing(out) as (tmp,), opened(tmp, newline="", encoding="utf-8") as f:
+            write_csv(candidate_rows(candidates), f)
     finally:
         movie.close()
     counts = candidates["kind"].value_counts()
     summary = ", ".join(f"{int(counts.get(k, 0))} {k}" for k in ("step", "transient", "global"))
     print(f"{how}; {len(candidates)} candidates ({summary})")
-    print(f"wrote {out}")
+    print(f"wrote {printable(str(out))}")
     return 0

@@ -9,8 +9,8 @@ from pathlib import Path
 import reviewer
 from reviewer.errors import BadInput
 from reviewer.movie.base import Timing
+from reviewer.outputs import guard, json_bytes, movie_files, opened, replacing
 from reviewer.store.events import utc_now
-from reviewer.store.journal import write_json_atomic
 from reviewer.store.table import STATUSES, write_csv
 
 
@@ -49,13 +49,25 @@ def _movie_facts(session, movie) -> dict:
     }
 
 
+def export_inputs(session, movie=None) -> list:
+    """What an export must never overwrite besides the session's files: the movie's files."""
+    given = session.meta.get("movie") if movie is None else None
+    return movie_files(movie, given)
+
+
 def export_events(session, csv_path: str | os.PathLike,
                   statuses: Iterable[str] = STATUSES, movie=None) -> tuple[Path, Path]:
-    """Write the events with the given statuses to csv_path and the provenance beside it."""
+    """Write the events with the given statuses to csv_path and the provenance beside it.
+
+    Raises BadInput when either file would overwrite an input (the movie, its descriptor or times
+    file, a session file) and `reviewer.outputs.WriteFailed` (also an OSError) when writing fails;
+    either way no file was changed."""
     wanted = parse_statuses(statuses)
     csv_path = Path(csv_path)
+    json_path = sidecar_path(csv_path)
+    guard([csv_path, (json_path, f"sidecar of {csv_path.name}")], export_inputs(session, movie),
+          sessions=[session.folder])
     rows = [e.as_row() for e in session.events if e.status in wanted]
-    write_csv(rows, csv_path)
     counts = session.counts()
     info = {
         "program": "reviewer",
@@ -68,6 +80,14 @@ def export_events(session, csv_path: str | os.PathLike,
         "csv": csv_path.name,
         "session": str(session.folder),
     }
-    json_path = sidecar_path(csv_path)
-    write_json_atomic(json_path, info)
+    data = json_bytes(info)
+    # Both files are written in full first; then the sidecar is renamed into place before the CSV.
+    # Readers start from the CSV and look for its sidecar, so a CSV never appears without one: a
+    # crash between the two renames leaves the new sidecar beside the previous CSV (or beside none),
+    # which describes the same movie; the other order could leave a CSV with no sidecar.
+    with replacing(json_path, csv_path) as (tmp_json, tmp_csv):
+        with opened(tmp_csv, newline="", encoding="utf-8", errors="surrogateescape") as f:
+            write_csv(rows, f)
+        with opened(tmp_json, "wb") as f:
+            f.write(data)
     return csv_path, json_path
