@@ -133,3 +133,19 @@ def test_frame_range():
         frame_range("a:b", 100)
     with pytest.raises(BadInput):
         frame_range("90:10", 100)
+
+
+def test_samples_tiff_never_replaces_a_tiff_movie(tmp_path):
+    # kymo.png writes kymo.tif beside it: when the movie is kymo.tif that is refused before any work
+    data, _ = front_movie(n=20)
+    movie_path = tmp_path / "kymo.tif"
+    tifffile.imwrite(movie_path, data)
+    before = movie_path.read_bytes()
+    for cmd in (["kymograph", movie_path, "--line", "5,24,45,24", "-o", tmp_path / "kymo.png"],
+                ["clip", movie_path, "--frame", "5", "-o", movie_path]):
+        out = subprocess.run([sys.executable, "-m", "reviewer", *map(str, cmd)],
+                             capture_output=True, text=True, timeout=60)
+        assert out.returncode == 2, out.stderr
+        assert "refusing to overwrite" in out.stderr and len(out.stderr.strip().splitlines()) == 1
+    assert movie_path.read_bytes() == before
+    assert not (tmp_path / "kymo.png").exists()

@@ -29,7 +29,7 @@ def test_scan_writes_candidates_and_reuses_the_cache(tmp_path, capsys):
     assert tuple(rows[0].keys()) == COLUMNS
     assert [r["frame"] for r in rows] == ["250"]
     r = rows[0]
-    assert r["event_id"] == "d000001" and r["status"] == "candidate" and r["source"] == "detector"
+    assert r["event_id"] == "d000000" and r["status"] == "candidate" and r["source"] == "detector"  # ids as in the session and export
     assert r["kind"] == "step" and float(r["time_s"]) == 250 / 400 and r["label"] == ""
     # second run: same settings -> the cached features are reused, same answer
     out_csv = tmp_path / "again.csv"

@@ -2,38 +2,26 @@
 
 from __future__ import annotations
 
-import json
-import math
-import os
 from pathlib import Path
 
 COLUMNS = ("movie", "frames", "duration_s", "fps", "step", "transient", "global", "candidates",
            "scan_s", "status", "error", "notices", "candidates_csv", "worker")
 
 
-def finite(v):
-    return None if isinstance(v, float) and not math.isfinite(v) else v
-
-
 def write_summary(rows: list[dict], path: Path, as_json: bool = False) -> None:
+    """Whole or not at all (reviewer.outputs.replacing)."""
     import csv
 
-    tmp = path.with_name(f".{path.name}.tmp")
-    try:
-        with open(tmp, "w", newline="", encoding="utf-8") as f:
-            if as_json:
-                json.dump([{c: finite(r.get(c)) for c in COLUMNS} for r in rows], f,
-                          allow_nan=False, indent=1)
-            else:
-                w = csv.writer(f, lineterminator="\r\n")
-                w.writerow(COLUMNS)
-                for r in rows:
-                    w.writerow(["" if r.get(c) is None else r.get(c) for c in COLUMNS])
-            f.flush()
-            os.fsync(f.fileno())
-        os.replace(tmp, path)
-    finally:
-        tmp.unlink(missing_ok=True)
+    from reviewer.outputs import json_text, opened, replacing
+
+    with replacing(path) as (tmp,), opened(tmp, newline="", encoding="utf-8") as f:
+        if as_json:
+            f.write(json_text([{c: r.get(c) for c in COLUMNS} for r in rows], indent=1))
+        else:
+            w = csv.writer(f, lineterminator="\r\n")
+            w.writerow(COLUMNS)
+            for r in rows:
+                w.writerow(["" if r.get(c) is None else r.get(c) for c in COLUMNS])
 
 
 def counts(rows: list[dict]) -> dict:

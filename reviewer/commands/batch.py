@@ -58,6 +58,7 @@ def run(args: argparse.Namespace) -> int:
     from reviewer.batch.summary import counts, write_summary
     from reviewer.detect import DetectSettings
     from reviewer.errors import BadInput
+    from reviewer.outputs import guard, movie_files
     from reviewer.progress import Progress
 
     if args.workers is not None and args.workers < 1:
@@ -68,10 +69,7 @@ def run(args: argparse.Namespace) -> int:
                        + ("" if args.recursive else " (--recursive looks into sub-folders)"))
     stamp = time.strftime("%Y%m%dT%H%M%SZ", time.gmtime())
     out = Path(args.output) if args.output else Path(f"batch-{stamp}.{'json' if args.json else 'csv'}")
-    if not out.parent.is_dir():
-        raise BadInput(f"{out.parent}: no such folder")
-    if any(out.resolve() == m.resolve() for m in movies):
-        raise BadInput(f"{out}: that is one of the movies; choose another -o")
+    guard([out], [pair for m in movies for pair in movie_files(given=m)])
     settings = DetectSettings(sensitivity=args.sensitivity).to_dict()
     choice = engine.EngineChoice(args.workers, args.scheduler, args.cluster,
                                  {"queue": args.queue, "cores": args.cores, "memory": args.memory,

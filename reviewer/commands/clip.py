@@ -7,7 +7,7 @@ import json
 import math
 from pathlib import Path
 
-from reviewer.commands._common import add_movie_arguments, open_movie_from_args
+from reviewer.commands._common import add_movie_arguments, open_checked
 from reviewer.errors import BadInput
 
 
@@ -87,6 +87,7 @@ def run(args: argparse.Namespace) -> int:
     from reviewer.movie.clip import Window, default_zoom
     from reviewer.movie.clip_files import kind_of, render, write
     from reviewer.movie.units import parse_length
+    from reviewer.outputs import guard, movie_files, table_files
 
     out = Path(args.output)
     kind = kind_of(out)
@@ -104,8 +105,10 @@ def run(args: argparse.Namespace) -> int:
         raise BadInput(f"--playback-fps {args.playback_fps}: between 0.1 and 100")
     if (args.event is None) == (args.frame is None):
         raise BadInput("give either EVENT_ID or --frame F")
-    movie = open_movie_from_args(args)
+    movie = open_checked(args)
     try:
+        guard([out], movie_files(movie, args.movie)
+              + (table_files(args.events) if args.events else []))
         if args.frame is not None:
             where = {"frame": args.frame, "x": args.x, "y": args.y}
         elif args.events:
@@ -119,8 +122,7 @@ def run(args: argparse.Namespace) -> int:
             raise BadInput(f"--zoom {zoom}: between 1 and 16")
         frames = window.read(movie)
         images, facts = render(frames, window, movie, kind, pixel_m, zoom, args.playback_fps)
-        inputs = [movie.path] + ([Path(args.events)] if args.events else [])
-        write(images, kind, out, facts, inputs)
+        write(images, kind, out, facts)
     finally:
         movie.close()
     print(json.dumps({"output": str(out), "kind": kind, **facts}))

@@ -9,7 +9,7 @@ from pathlib import Path
 
 import numpy as np
 
-from reviewer.commands._common import add_movie_arguments, open_movie_from_args
+from reviewer.commands._common import add_movie_arguments, open_checked
 from reviewer.errors import BadInput
 
 
@@ -50,7 +50,8 @@ def _event_frames(path: str) -> np.ndarray:
 
 def run(args: argparse.Namespace) -> int:
     from reviewer.movie.kymograph import Line, auto_bin, frame_range, kymograph
-    from reviewer.movie.kymograph_image import save_kymograph
+    from reviewer.movie.kymograph_image import outputs_of, save_kymograph
+    from reviewer.outputs import guard, movie_files, table_files
     from reviewer.progress import Progress
 
     line = Line.parse(args.line, args.width)
@@ -58,12 +59,14 @@ def run(args: argparse.Namespace) -> int:
     if png.suffix.lower() != ".png":
         raise BadInput(f"{png}: the kymograph image must be a .png (the samples go beside it as .tif)")
     events = _event_frames(args.events) if args.events else None
-    movie = open_movie_from_args(args)
+    movie = open_checked(args)
     try:
         start, stop = frame_range(args.frames, movie.n_frames)
         if args.bin is not None and args.bin < 1:
             raise BadInput(f"--bin {args.bin}: must be 1 or more frames")
         bin_frames = args.bin or auto_bin(stop - start)
+        guard(outputs_of(png), movie_files(movie, args.movie)
+              + (table_files(args.events) if args.events else []))
         progress = Progress(stop - start, stream=sys.stderr)
         done = [0]
 
@@ -77,8 +80,7 @@ def run(args: argparse.Namespace) -> int:
                 "line": [line.x0, line.y0, line.x1, line.y1], "width": line.width,
                 "first_frame": start, "frames": stop - start, "bin_frames": bin_frames,
                 "fps": movie.fps}
-        inputs = [movie.path] + ([Path(args.events)] if args.events else [])
-        tif = save_kymograph(image, png, meta, events, inputs=inputs)
+        tif = save_kymograph(image, png, meta, events)
     finally:
         movie.close()
     print(json.dumps({"png": str(png), "tiff": str(tif), "rows": image.shape[0],

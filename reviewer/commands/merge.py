@@ -22,28 +22,17 @@ def register(subparsers) -> None:
     p.set_defaults(func=run)
 
 
-def _refuse_inputs(out: Path, inputs: list[Path]) -> None:
-    from reviewer.errors import BadInput
-    from reviewer.store.export import sidecar_path
-
-    targets = [out.resolve(), sidecar_path(out).resolve()]
-    for src in inputs:
-        for related in (src, sidecar_path(src)):
-            if related.resolve() in targets:
-                raise BadInput(f"{out}: would overwrite the input {related}; choose another -o")
-
-
 def run(args: argparse.Namespace) -> int:
     import reviewer
-    from reviewer.errors import BadInput
+    from reviewer.outputs import guard, json_bytes, opened, replacing, table_files
     from reviewer.store.agreement import agreement, merged_rows, read_review, same_movie
     from reviewer.store.events import utc_now
     from reviewer.store.export import sidecar_path
-    from reviewer.store.journal import write_json_atomic
     from reviewer.store.table import write_csv
 
     out = Path(args.output)
-    _refuse_inputs(out, [Path(args.a), Path(args.b)])
+    side = sidecar_path(out)
+    guard([out, (side, f"sidecar of {out.name}")], table_files(args.a) + table_files(args.b))
     a, ia = read_review(args.a)
     b, ib = read_review(args.b)
     warning = same_movie(args.a, ia, args.b, ib)
@@ -58,11 +47,11 @@ def run(args: argparse.Namespace) -> int:
                        {"csv": str(Path(args.b).resolve()), "exported_at": ib.get("exported_at")}],
             "kappa": result.kappa, "counts": {**result.counts, "disputed": disputed},
             "csv": out.name}
-    try:
-        write_json_atomic(sidecar_path(out), info)  # the sidecar first: never a CSV without it
-        write_csv(rows, out)
-    except OSError as exc:
-        raise BadInput(f"{out}: cannot write ({exc.strerror or exc})") from None
+    with replacing(side, out) as (tmp_json, tmp_csv):  # the sidecar lands first (see export)
+        with opened(tmp_csv, newline="", encoding="utf-8") as f:
+            write_csv(rows, f)
+        with opened(tmp_json, "wb") as f:
+            f.write(json_bytes(info))
     print(f"wrote {len(rows)} events to {out}: {len(rows) - disputed} agreed, {disputed} disputed")
     print(f"provenance in {sidecar_path(out)}")
     return 0

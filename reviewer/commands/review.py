@@ -64,4 +64,6 @@ def review(movie, args: argparse.Namespace) -> int:
 
 
 def run(args: argparse.Namespace) -> int:
-    return review(args.movie, args)
+    from reviewer.commands._common import open_checked
+
+    return review(open_checked(args), args)  # the frame-rate check and notices, as elsewhere

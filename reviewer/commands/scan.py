@@ -33,11 +33,13 @@ def register(subparsers) -> None:
 
 def candidate_rows(candidates) -> list[dict]:
     """Event-table rows (store.table.COLUMNS) for detector candidates."""
+    from reviewer.store.events import detector_id
+
     rows = []
-    for i, c in enumerate(candidates.itertuples(index=False), start=1):
+    for i, c in enumerate(candidates.itertuples(index=False)):  # ids as the session gives them
         fe = c.frame_end
         rows.append({
-            "event_id": f"d{i:06d}", "frame": int(c.frame), "time_s": _num(c.time_s),
+            "event_id": detector_id(i), "frame": int(c.frame), "time_s": _num(c.time_s),
             "frame_end": None if pd.isna(fe) else int(fe),
             "kind": c.kind, "score": float(c.score), "x": _num(c.x), "y": _num(c.y),
             "status": "candidate", "label": "", "note": "", "source": "detector",

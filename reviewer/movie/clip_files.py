@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import json
-import os
 from pathlib import Path
 
 import numpy as np
@@ -19,7 +17,6 @@ from reviewer.movie.clip import (
     strip_panels,
     to_grey,
 )
-from reviewer.movie.kymograph_image import refuse_overwrite
 
 KINDS = {".gif": "animation", ".apng": "animation", ".png": "strip", ".tif": "stack",
          ".tiff": "stack"}
@@ -71,17 +68,15 @@ def _strip(images: list):
     return out
 
 
-def write(images: list, kind: str, out: Path, facts: dict, inputs: list[Path]) -> None:
-    """Write through a temporary file in the same folder, renamed into place."""
+def write(images: list, kind: str, out: Path, facts: dict) -> None:
+    """Write `out` whole or not at all (guard it against the inputs first: reviewer.outputs)."""
     import tifffile
 
-    refuse_overwrite([out], inputs)
-    if not out.parent.is_dir():
-        raise BadInput(f"{out.parent}: no such folder")
-    tmp = out.with_name(f".{out.name}.tmp")
-    try:
+    from reviewer.outputs import json_text, replacing
+
+    with replacing(out) as (tmp,):
         if kind == "stack":
-            tifffile.imwrite(tmp, images[0], description=json.dumps(facts, allow_nan=False))
+            tifffile.imwrite(tmp, images[0], description=json_text(facts))
         elif kind == "strip":
             _strip(images).save(tmp, format="PNG")
         else:
@@ -89,10 +84,3 @@ def write(images: list, kind: str, out: Path, facts: dict, inputs: list[Path]) -
             fmt = "GIF" if out.suffix.lower() == ".gif" else "PNG"
             images[0].save(tmp, format=fmt, save_all=True, append_images=images[1:],
                            duration=ms, loop=0)
-        with open(tmp, "rb") as f:
-            os.fsync(f.fileno())
-        os.replace(tmp, out)
-    except OSError as exc:
-        raise BadInput(f"{out}: cannot write ({exc.strerror or exc})") from None
-    finally:
-        tmp.unlink(missing_ok=True)

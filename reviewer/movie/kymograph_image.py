@@ -2,13 +2,9 @@
 
 from __future__ import annotations
 
-import json
-import os
 from pathlib import Path
 
 import numpy as np
-
-from reviewer.errors import BadInput
 
 MARK_PX = 3  # width of the event-mark margin at the left of the PNG
 
@@ -38,49 +34,22 @@ def picture(image: np.ndarray, meta: dict, events: np.ndarray | None = None) -> 
     return np.concatenate([margin, rgb], axis=1)
 
 
-def _same(a: Path, b: Path) -> bool:
-    try:
-        return a.exists() and b.exists() and os.path.samefile(a, b)
-    except OSError:
-        return a.resolve() == b.resolve()
+def outputs_of(png: Path) -> list:
+    """The files a kymograph writes, for reviewer.outputs.guard (call it before the long pass)."""
+    return [png, (png.with_suffix(".tif"), f"samples of {png.name}")]
 
 
-def refuse_overwrite(outputs: list[Path], inputs: list[Path]) -> None:
-    """BadInput when an output is an input, or a movie's descriptor or timestamps file."""
-    for out in outputs:
-        for src in inputs:
-            src = Path(src)
-            related = [src, Path(str(src) + ".json"), src.with_suffix(".json"),
-                       Path(str(src) + ".times.csv")]
-            if any(_same(Path(out), r) for r in related):
-                raise BadInput(f"{out}: that is an input of this command; choose another -o")
-
-
-def save_kymograph(image: np.ndarray, png: Path, meta: dict, events: np.ndarray | None = None,
-                   inputs: list[Path] | None = None) -> Path:
-    """Write `png` and its TIFF beside it (same stem); refuse to write over any input; each file
-    goes through a temporary name in the same folder and is renamed into place."""
+def save_kymograph(image: np.ndarray, png: Path, meta: dict,
+                   events: np.ndarray | None = None) -> Path:
+    """Write `png` and its TIFF beside it (same stem); both appear whole or not at all."""
     import tifffile
     from PIL import Image
 
+    from reviewer.outputs import json_text, replacing
+
     png = Path(png)
     tif = png.with_suffix(".tif")
-    refuse_overwrite([png, tif], inputs or [])
-    if not png.parent.is_dir():
-        raise BadInput(f"{png.parent}: no such folder")
-    tmps = [png.with_name(f".{png.name}.tmp"), tif.with_name(f".{tif.name}.tmp")]
-    try:
-        Image.fromarray(picture(image, meta, events)).save(tmps[0], format="PNG")
-        tifffile.imwrite(tmps[1], image.astype(np.float32),
-                         description=json.dumps(meta, allow_nan=False, default=str))
-        for tmp in tmps:
-            with open(tmp, "rb") as f:
-                os.fsync(f.fileno())
-        os.replace(tmps[1], tif)
-        os.replace(tmps[0], png)
-    except OSError as exc:
-        raise BadInput(f"{png}: cannot write ({exc.strerror or exc})") from None
-    finally:
-        for tmp in tmps:
-            tmp.unlink(missing_ok=True)
+    with replacing(tif, png) as (tmp_tif, tmp_png):
+        Image.fromarray(picture(image, meta, events)).save(tmp_png, format="PNG")
+        tifffile.imwrite(tmp_tif, image.astype(np.float32), description=json_text(meta))
     return tif
