@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 
 from reviewer.commands._common import add_movie_arguments
@@ -48,6 +49,12 @@ def review(movie, args: argparse.Namespace) -> int:
     from reviewer.store.signals import install_signal_savers
     from reviewer.tui.app import make_app
 
+    if isinstance(movie, str | os.PathLike):  # the frame-rate check and notices, as elsewhere
+        from reviewer.commands._common import open_checked
+
+        args.movie = str(movie)
+        movie = open_checked(args)
+
     app = make_app(movie, fps=args.fps, keymap=args.keymap, session_dir=args.session,
                    advance=args.advance, reclaim=args.reclaim_lock)
     restore = install_signal_savers(app.session, app.on_signal_exit)
@@ -64,6 +71,4 @@ def review(movie, args: argparse.Namespace) -> int:
 
 
 def run(args: argparse.Namespace) -> int:
-    from reviewer.commands._common import open_checked
-
-    return review(open_checked(args), args)  # the frame-rate check and notices, as elsewhere
+    return review(args.movie, args)
