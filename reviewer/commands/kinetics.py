@@ -32,6 +32,9 @@ def _seed(text: str) -> int:
     return value
 
 
+MAX_LAYER_NM = 1e4  # a "layer" thicker than 10 um is a typing error, not a crystal layer
+
+
 def register(subparsers) -> None:
     from reviewer.kinetics.groups import DEFAULT_RADIUS_PX
     from reviewer.kinetics.spacings import SPACINGS
@@ -73,6 +76,9 @@ def _layer(args) -> tuple[float | None, str | None]:
 
         spacing = layer_height(args.layer)
         return spacing.d_nm, spacing.describe()
+    if args.layer_nm and args.layer_nm > MAX_LAYER_NM:
+        raise BadInput(f"--layer-nm {args.layer_nm:g}: not a layer height (at most "
+                       f"{MAX_LAYER_NM:g} nm)")
     if args.layer_nm:
         return args.layer_nm, f"{args.layer_nm:g} nm (given with --layer-nm)"
     return None, None
@@ -102,11 +108,15 @@ def run(args: argparse.Namespace) -> int:
     layer_nm, layer_source = _layer(args)
     what = "/".join(args.status) + (f" {args.label!r}" if args.label is not None else "")
 
+    share = {"budget": 1.0}
+
     def one(part) -> dict:
+        if part.attrs.get("skip"):
+            return {"events": len(part), "error": part.attrs["skip"]}
         multi = int(np.sum(part["frame_end"].to_numpy(float) > part["frame"].to_numpy(float)))
         return summarise(part["time_s"].to_numpy(float), info.get("duration_s"), layer_nm,
                          frame_s=1.0 / fps if fps else None, seed=args.seed,
-                         multi_frame_events=multi)
+                         multi_frame_events=multi, budget=share["budget"])
 
     if len(sel) < 2:
         raise BadInput(f"{args.events}: only {len(sel)} {what} event: two events are the "
@@ -121,6 +131,7 @@ def run(args: argparse.Namespace) -> int:
               "layer_source": layer_source, "movie": info, **result, "groups": None}
     if parts is not None:
         result["groups"] = []
+        share["budget"] = 1.0 / max(1, len(parts))  # the groups share one run's resampling work
         for name, part in parts:
             try:
                 g = one(part)
@@ -140,7 +151,9 @@ def run(args: argparse.Namespace) -> int:
         except (OSError, ValueError) as exc:
             raise BadInput(f"{args.plot}: cannot write the plot ({exc})") from None
     if args.json:
-        print(json.dumps(result, indent=2, allow_nan=False, ensure_ascii=False))
+        from reviewer.kinetics.report import finite
+
+        print(json.dumps(finite(result), indent=2, allow_nan=False, ensure_ascii=False))
     else:
         result["title"] = (f"{args.events}: {len(sel)} {what} events"
                            + (f", grouped by {by}" if by else ""))

@@ -14,6 +14,8 @@ PANEL_W, PANEL_H = 520, 340
 MARGIN = dict(left=64, right=16, top=34, bottom=46)
 INK, GRID, BAR = (30, 30, 30), (225, 225, 225), (170, 190, 215)
 EXPON, GAMMA, RATE = (200, 60, 40), (30, 120, 60), (120, 80, 170)
+MAX_BINS = 40      # histogram bars in one panel
+MAX_STEPS = 2_000  # steps drawn of the cumulative count
 
 
 def _font(size: int = 13):
@@ -85,12 +87,32 @@ class Axes:
             y += 18
 
 
+def bin_count(x: np.ndarray) -> int:
+    """Histogram bins: the larger of the Freedman-Diaconis and Sturges counts over [0, 1.05 max]; always 1 to MAX_BINS (equal waits have no spread to size a bin by)."""
+    n = x.size
+    sturges = math.ceil(math.log2(max(n, 1))) + 1
+    q75, q25 = np.percentile(x, [75, 25]) if n else (0.0, 0.0)
+    width = 2 * (q75 - q25) / n ** (1 / 3) if n else 0.0
+    top = float(np.max(x)) * 1.05 if n else 0.0
+    fd = math.ceil(top / width) if width > 0 and top > 0 else sturges
+    return int(min(MAX_BINS, max(1, fd, sturges)))
+
+
+def _staircase(times: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Cumulative count as a step line, thinned to at most MAX_STEPS steps (a panel is ~450 px)."""
+    counts = np.arange(1, times.size + 1)
+    if times.size > MAX_STEPS:
+        keep = np.unique(np.linspace(0, times.size - 1, MAX_STEPS).astype(int))
+        times, counts = times[keep], counts[keep]
+    xs = np.repeat(times, 2)[1:]
+    ys = np.repeat(counts, 2)[:-1]
+    return xs, ys
+
+
 def _histogram(draw, x0, y0, intervals: np.ndarray, s: dict, name: str) -> None:
     hi_x = float(np.max(intervals)) * 1.05 or 1.0
-    edges = np.histogram_bin_edges(intervals, bins="auto", range=(0.0, hi_x))
-    if edges.size > 41:
-        edges = np.linspace(0.0, hi_x, 41)
-    dens, edges = np.histogram(intervals, bins=edges, density=True)
+    dens, edges = np.histogram(intervals, bins=bin_count(intervals), range=(0.0, hi_x),
+                               density=True)
     grid = np.linspace(hi_x / 400, hi_x, 400)
     curves = []
     if s.get("exponential_scale_s"):
@@ -116,8 +138,7 @@ def _cumulative(draw, x0, y0, times: np.ndarray, s: dict, name: str) -> None:
     pad = (t1 - t0) * 0.03 or 1.0
     ax = Axes(draw, x0, y0, (t0 - pad, t1 + pad), (0.0, times.size * 1.08))
     ax.frame(f"{name}: cumulative count", "time (s)", "events")
-    xs = np.repeat(times, 2)[1:]
-    ys = np.repeat(np.arange(1, times.size + 1), 2)[:-1]
+    xs, ys = _staircase(times)
     ax.curve(xs, ys, INK)
     ax.curve(np.array([t0, t1]), np.array([1.0, 1.0 + s["rate_per_s"] * (t1 - t0)]), RATE)
     ax.legend([("events", INK), (f"rate k/span {s['rate_per_s']:.3g} /s", RATE)], left=True)

@@ -4,7 +4,24 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
+
 DASH = "—"
+
+
+def finite(obj):
+    """A copy of a result fit for strict JSON: non-finite numbers become None, numpy scalars plain."""
+    if isinstance(obj, dict):
+        return {str(k): finite(v) for k, v in obj.items()}
+    if isinstance(obj, list | tuple):
+        return [finite(v) for v in obj]
+    if isinstance(obj, bool | str) or obj is None:
+        return obj
+    if isinstance(obj, int | np.integer):
+        return int(obj)
+    if isinstance(obj, float | np.floating):
+        return float(obj) if math.isfinite(obj) else None
+    return str(obj)
 
 
 def _g(v: float | None, unit: str = "", digits: int = 4) -> str:

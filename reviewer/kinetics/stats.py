@@ -7,11 +7,14 @@ from __future__ import annotations
 
 import math
 import warnings
+from functools import lru_cache
 
 import numpy as np
 from scipy import optimize, special, stats
 
 BCA_MAX_N = 2_000
+BIG_N = 5_000         # above this many intervals: moment (delta-method) CV interval, asymptotic GOF
+GOF_REF_N = 5_000     # ... whose null distribution of sqrt(n) * D is simulated at this sample size
 CHI2_95_1DF = float(stats.chi2.ppf(0.95, 1))  # 3.841: profile-likelihood 95 % cut
 
 
@@ -50,6 +53,49 @@ def cv_bootstrap_ci95(x: np.ndarray, seed: int, n_resamples: int) -> tuple[float
                                   method="percentile", rng=np.random.default_rng(seed))
             lo, hi = res.confidence_interval
     return float(lo), float(hi), method
+
+
+def cv_delta_ci95(x: np.ndarray) -> tuple[float, float]:
+    """Normal 95 % interval of the CV from sample moments (delta method; for long tables).
+
+    Var(CV) ~ (cv^4 + (m4 - s^4) / (4 s^2 m^2) - m3 / m^3) / n with central moments m3, m4 (so 1/n
+    for exponential waits).
+    """
+    n, m = x.size, float(np.mean(x))
+    d = x - m
+    s2 = float(np.mean(d * d))
+    m3, m4 = float(np.mean(d**3)), float(np.mean(d**4))
+    cv = math.sqrt(s2 * n / (n - 1)) / m
+    var = (s2**2 / m**4 + (m4 - s2**2) / (4 * s2 * m * m) - m3 / m**3) / n
+    half = 1.959963984540054 * math.sqrt(max(var, 0.0))
+    return max(0.0, cv - half), cv + half
+
+
+def ks_exponential(x: np.ndarray) -> float:
+    """Kolmogorov-Smirnov distance between the waits and an exponential with their mean."""
+    z = np.sort(x) / np.mean(x)
+    f = -np.expm1(-z)
+    n = z.size
+    i = np.arange(1, n + 1)
+    return float(max(np.max(i / n - f), np.max(f - (i - 1) / n)))
+
+
+def gof_exponential_p_asymptotic(x: np.ndarray, seed: int, n_samples: int) -> float:
+    """KS p value for long tables: sqrt(n) * D against its null simulated at GOF_REF_N waits.
+
+    The null of sqrt(n) * D with a fitted scale hardly depends on n at these sizes (Lilliefors-type
+    limit); simulated in chunks, so memory stays bounded.
+    """
+    stat = math.sqrt(x.size) * ks_exponential(x)
+    null = _ks_null(seed, n_samples)
+    return float((1 + np.sum(null >= stat)) / (n_samples + 1))
+
+
+@lru_cache(maxsize=8)
+def _ks_null(seed: int, n_samples: int) -> np.ndarray:
+    rng = np.random.default_rng(seed)
+    null = [ks_exponential(rng.exponential(1.0, GOF_REF_N)) for _ in range(n_samples)]
+    return np.asarray(null) * math.sqrt(GOF_REF_N)
 
 
 def gamma_profile_loglik(shape: float, x: np.ndarray) -> float:
