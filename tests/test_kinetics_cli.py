@@ -110,7 +110,7 @@ def test_acceptance_every_figure_against_scipy(tmp_path, capsys):
     assert rel(out["gof_p_exponential"], gof.pvalue) < 1e-6
     assert rel(out["velocity_nm_per_s"], 0.2 * k / span) < 1e-6
     assert out["groups"] is None
-    assert "regular than random" in out["reading"]  # gamma(3) waits: CV near 0.58
+    assert "more regular than Poisson arrivals" in out["reading"]  # gamma(3) waits: CV near 0.58
 
 
 @pytest.mark.parametrize("case, expect", [

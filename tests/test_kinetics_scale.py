@@ -127,3 +127,12 @@ def test_asymptotic_gof_agrees_with_scipy_goodness_of_fit():
                                np.random.default_rng(0).exponential(1.0, 10**6)])
 def test_histogram_bins_are_bounded(x):
     assert 1 <= bin_count(x) <= MAX_BINS
+
+
+def test_long_table_is_still_read():
+    # above the long-table limits (moment CV interval, asymptotic KS, CV-scaled Laplace) the
+    # reading still weighs the tests: a Poisson table of 30,000 events reads as random
+    t = poisson_times = np.cumsum(np.random.default_rng(12).exponential(1.0, 30_000))
+    s = summarise(poisson_times, duration_s=float(t[-1]) + 0.5)
+    assert s["poisson_cv_range95"] is not None and s["interval_cv_p_poisson"] is not None
+    assert s["reading"].startswith("Consistent with random"), s["reading"]

@@ -44,6 +44,14 @@ def _p(v: float | None) -> str:
     return f"{v:.2g}" if v >= 1e-3 else "< 0.001"
 
 
+def _gap(s: dict, key: str, p_key: str, ci_key: str | None = None) -> str:
+    if s.get(key) is None:
+        return DASH
+    ci = s.get(ci_key) if ci_key else None
+    return (_g(s[key], " s") + (f"  [{_g(ci[0])}, {_g(ci[1])}]" if ci else "")
+            + (f", {_p(s[p_key])}" if s.get(p_key) is not None else ""))
+
+
 ROWS = (
     ("events n", lambda s: str(s["events"])),
     ("complete intervals k = n - 1", lambda s: str(s.get("intervals", DASH))),
@@ -60,13 +68,26 @@ ROWS = (
     ("count rate n/T  [95 %, Garwood exact]",
      lambda s: _ci(s, "count_rate_per_s", "count_rate_ci95_per_s", " /s")
      if s.get("count_rate_per_s") is not None else "unknown (no movie duration)"),
+    ("rate (k - 1)/span (unbiased, Poisson)", lambda s: _g(s.get("rate_unbiased_per_s"), " /s")),
+    ("shortest interval", lambda s: _g(s.get("interval_min_s"), " s")
+     + (f" = {_g(s['interval_min_frames'], ' frames', 3)}"
+        if s.get("interval_min_frames") is not None else "")),
+    ("start -> first event  [onset 95 %], p", lambda s: _gap(s, "incubation_s", "incubation_p",
+                                                            "onset_ci95_s")),
+    ("last event -> end, p", lambda s: _gap(s, "tail_gap_s", "tail_gap_p")),
+    ("Laplace trend U, p", lambda s: f"{s['trend_laplace_u']:.2f}, {_p(s['trend_laplace_p'])}"
+     if s.get("trend_laplace_p") is not None else DASH),
+    ("most likely change of rate, p", lambda s: f"t = {_g(s['change_point']['time_s'], ' s')}, "
+     f"{_p(s['change_point']['p'])}" if s.get("change_point") else DASH),
+    ("lag-1 correlation of waits, p", lambda s: f"{s['lag1_r']:.2f}, {_p(s['lag1_p'])}"
+     if s.get("lag1_p") is not None else DASH),
     ("exponential fit: mean wait", lambda s: _g(s.get("exponential_scale_s"), " s")),
     ("gamma fit: shape  [95 %, profile lik.]",
      lambda s: _ci(s, "gamma_shape", "gamma_shape_ci95")),
     ("gamma fit: scale", lambda s: _g(s.get("gamma_scale_s"), " s")),
     ("gamma vs exponential: LR p", lambda s: _p(s.get("gamma_vs_exponential_p"))),
     ("exponential GOF p (KS, bootstrap)", lambda s: _p(s.get("gof_p_exponential"))),
-    ("velocity = rate x layer height  [95 %]",
+    ("velocity = k/span x layer height  [95 %]",
      lambda s: _ci(s, "velocity_nm_per_s", "velocity_ci95_nm_per_s", " nm/s")
      if s.get("velocity_nm_per_s") is not None else "no layer height given"),
 )
@@ -104,6 +125,14 @@ def render(result: dict) -> str:
                    + (f" (T = {_g(first['duration_s'])} s)." if first.get("duration_s") else "."))
         out.append(f"Gamma shape interval: {first['gamma_shape_ci_method']}. "
                    f"GOF: {first['gof_method']}.")
+        cp = first.get("change_point")
+        shuffles = (f"p from the same {cp['simulations']} shuffles" if cp and cp["simulations"]
+                    else "no p value")
+        out.append(f"Trend: {first.get('trend_method') or DASH}. Change of rate: Poisson "
+                   f"likelihood of one change after an event, {shuffles}. Lag-1: "
+                   f"{first.get('lag1_method') or DASH}. Onset: the time events began if they "
+                   "came at rate k/span from then on. Reading: alpha 0.05 for the whole reading "
+                   "(Bonferroni over the tests it uses).")
     if result.get("layer_source"):
         out.append(f"Layer height: {result['layer_source']}.")
     for g in groups:

@@ -6,7 +6,7 @@ import math
 
 import numpy as np
 
-from reviewer.kinetics import reading, stats
+from reviewer.kinetics import reading, stats, trend
 
 BOOT_RESAMPLES = 9_999  # bootstrap resamples for the CV interval
 GOF_SAMPLES = 9_999     # parametric-bootstrap samples for the exponential goodness of fit
@@ -38,6 +38,34 @@ def _fit_gamma(out: dict, x: np.ndarray) -> None:
             out["gamma_shape_ci95"] = _pair(*stats.gamma_shape_ci95(x, shape))
     except (ArithmeticError, ValueError, RuntimeError):
         out["gamma_shape_ci95"] = None
+
+
+def _beyond_renewal(out: dict, t: np.ndarray, x: np.ndarray, seed: int,
+                    frame_s: float | None) -> None:
+    """Trend, change of rate, gaps at either end, serial correlation, shortest wait (new keys)."""
+    k, span = x.size, out["span_s"]
+    out["alpha"] = reading.ALPHA
+    out["interval_min_s"] = float(np.min(x))
+    out["interval_min_frames"] = _num(float(np.min(x)) / frame_s) if frame_s else None
+    out["frame_s"] = _num(frame_s) if frame_s else None
+    out["rate_unbiased_per_s"] = (k - 1) / span if k >= 2 else None
+    out["velocity_rate"] = "rate_per_s (k/span)"
+    tt = trend.trend_tests(t, seed)
+    out["trend_laplace_u"] = _num(tt["laplace_u"]) if tt else None
+    out["trend_laplace_p"] = _num(tt["laplace_p"]) if tt else None
+    out["trend_method"] = (f"Laplace statistic on the {t.size - 2} events between the first and "
+                           f"the last, {tt['method']} (seed {seed})"
+                           if tt else None)
+    out["change_point"] = tt["change_point"] if tt else None
+    rate = out["rate_per_s"]
+    out["incubation_s"] = float(t[0]) if t[0] >= 0 else None
+    out["incubation_p"] = trend.gap_p(float(t[0]), rate) if t[0] >= 0 else None
+    out["onset_ci95_s"] = trend.onset_ci95(float(t[0]), 0.0, rate) if t[0] >= 0 else None
+    T = out["duration_s"]
+    out["tail_gap_s"] = max(0.0, T - float(t[-1])) if T else None
+    out["tail_gap_p"] = trend.gap_p(out["tail_gap_s"], rate) if T else None
+    lag = trend.lag1(x, seed)
+    out["lag1_r"], out["lag1_p"], out["lag1_method"] = lag if lag else (None, None, None)
 
 
 def summarise(times_s, duration_s: float | None = None, layer_nm: float | None = None, *,
@@ -84,7 +112,7 @@ def summarise(times_s, duration_s: float | None = None, layer_nm: float | None =
         "gamma_vs_exponential_p": None, "gof_p_exponential": None,
         "gof_method": (f"KS against an exponential with fitted scale, parametric bootstrap "
                        f"({n_gof} samples, seed {seed})"),
-        "poisson_cv_range95": None, "layer_nm": _num(layer_nm) if layer_nm else None,
+        "poisson_cv_range95": None, "interval_cv_p_poisson": None, "layer_nm": _num(layer_nm) if layer_nm else None,
         "velocity_nm_per_s": None, "velocity_ci95_nm_per_s": None, "seed": seed,
     }
     if out["exponential_scale_s"]:
@@ -100,8 +128,10 @@ def summarise(times_s, duration_s: float | None = None, layer_nm: float | None =
         lo, hi, method = stats.cv_bootstrap_ci95(x, seed, n_boot)
         out["interval_cv_ci95"] = _pair(lo, hi)
         out["interval_cv_ci_method"] = f"bootstrap {method}, {n_boot} resamples, seed {seed}"
+    if k >= 2 and sd is not None:
         band = reading.poisson_cv_range(k)
         out["poisson_cv_range95"] = list(band) if band else None
+        out["interval_cv_p_poisson"] = reading.poisson_cv_p(k, cv)
     zeros = int(np.sum(x == 0))
     spread = cv is not None and cv > MIN_CV  # waits that all agree leave nothing to fit
     if k >= 2 and zeros == 0 and spread:
@@ -117,6 +147,7 @@ def summarise(times_s, duration_s: float | None = None, layer_nm: float | None =
         out["velocity_nm_per_s"] = _num(out["rate_per_s"] * out["layer_nm"])
         if out["rate_ci95_per_s"]:
             out["velocity_ci95_nm_per_s"] = _pair(*out["rate_ci95_per_s"], out["layer_nm"])
+    _beyond_renewal(out, t, x, seed, frame_s)
     out["reading"] = reading.sentence(out)
     out["pitfalls"] = reading.pitfalls(out, frame_s=frame_s, zero_intervals=zeros,
                                        multi_frame_events=multi_frame_events)
