@@ -112,6 +112,11 @@ ROWS = (
      lambda s: _ci(s, "gamma_shape", "gamma_shape_ci95_calibrated")
      + (f"  (chi-sq. covers {s['gamma_shape_ci_coverage']:.2f})"
         if s.get("gamma_shape_ci_coverage") is not None else "")),
+    ("exponential, last wait censored: mean", lambda s: _g(s.get("exponential_scale_censored_s"),
+                                                           " s")),
+    ("gamma, last wait censored: shape", lambda s: _g(s.get("gamma_shape_censored"))),
+    ("rate k/(T - t_first)  [95 %, exposure]",
+     lambda s: _ci(s, "rate_censored_per_s", "rate_censored_ci95_per_s", " /s")),
     ("gamma fit: scale", lambda s: _g(s.get("gamma_scale_s"), " s")),
     ("gamma vs exponential: LR p", lambda s: _p(s.get("gamma_vs_exponential_p"))),
     ("exponential GOF p (KS, bootstrap)", lambda s: _p(s.get("gof_p_exponential"))),
