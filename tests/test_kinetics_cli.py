@@ -222,7 +222,7 @@ def test_plot_png(tmp_path, capsys):
     assert main(["kinetics", str(path), "--by", "label", "--plot", str(png)]) == 0
     capsys.readouterr()
     with Image.open(png) as img:  # Pillow reads back what we wrote
-        assert img.format == "PNG" and img.size == (1040, 2 * 340)
+        assert img.format == "PNG" and img.size == (3 * 520, 2 * 340)
         colours = {c for _, c in img.convert("RGB").getcolors(1 << 20)}
     assert (200, 60, 40) in colours and (30, 120, 60) in colours  # exponential and gamma curves
 
