@@ -96,6 +96,44 @@ def _groups(args, sel):
     return None, None
 
 
+def _per_area(name: str, g: dict, info: dict, args) -> dict:
+    """ROI groups: the area and the count rate per area n / (T x area) with its Garwood interval."""
+    if not args.roi or g.get("error") or not info.get("duration_s"):
+        return {}
+    from reviewer.kinetics.groups import read_roi
+    from reviewer.kinetics.stats import garwood_ci95
+
+    box = {r.name: (r.x1 - r.x0 + 1) * (r.y1 - r.y0 + 1) for r in read_roi(args.roi)}
+    if name not in box:
+        return {}
+    exposure = info["duration_s"] * box[name]
+    lo, hi = garwood_ci95(g["events"])
+    return {"area_px2": box[name], "count_rate_per_s_px2": g["events"] / exposure,
+            "count_rate_ci95_per_s_px2": [lo / exposure, hi / exposure]}
+
+
+def _comparison(parts, summaries, sel, info, args) -> dict | None:
+    """The first two analysed groups compared over the recording (or the events' span)."""
+    from reviewer.kinetics.compare import compare
+
+    done = [(name, part) for (name, part), g in zip(parts, summaries, strict=True)
+            if not g.get("error")]
+    if len(done) < 2:
+        return None
+    times = sel["time_s"].to_numpy(float)
+    window = info.get("duration_s") or float(times.max() - times.min())
+    areas = None
+    if args.roi:
+        from reviewer.kinetics.groups import read_roi
+
+        box = {r.name: (r.x1 - r.x0 + 1) * (r.y1 - r.y0 + 1) for r in read_roi(args.roi)}
+        if done[0][0] in box and done[1][0] in box:
+            areas = (box[done[0][0]], box[done[1][0]])
+    (n1, p1), (n2, p2) = done[:2]
+    return compare(n1, p1["time_s"].to_numpy(float), n2, p2["time_s"].to_numpy(float), window,
+                   areas, args.seed)
+
+
 def run(args: argparse.Namespace) -> int:
     from reviewer.kinetics import read_events, summarise
     from reviewer.kinetics.read import select_events
@@ -137,9 +175,10 @@ def run(args: argparse.Namespace) -> int:
                 g = one(part)
             except ValueError as exc:
                 g = {"events": len(part), "error": str(exc)}
-            result["groups"].append({"group": name, **g})
+            result["groups"].append({"group": name, **g, **_per_area(name, g, info, args)})
         result["pooled_note"] = ("The top-level figures of --json pool all selected events; "
                                  "read the groups.")
+        result["comparison"] = _comparison(parts, result["groups"], sel, info, args)
     if args.plot:
         from reviewer.kinetics.plot import plot_groups
 

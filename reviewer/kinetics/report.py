@@ -56,6 +56,10 @@ def _ci(s: dict, key: str, ci_key: str, unit: str = "") -> str:
     return f"{_g(v, unit, d)}  [{_g(ci[0], '', d)}, {_g(ci[1], '', d)}]"
 
 
+def _pv(v: float | None) -> str:
+    return DASH if v is None else (f"p = {v:.2g}" if v >= 1e-3 else "p < 0.001")
+
+
 def _p(v: float | None) -> str:
     if v is None:
         return DASH
@@ -185,6 +189,15 @@ def render(result: dict) -> str:
             continue
         out.append(g["reading"])
         out += [f"  ! {p}" for p in g["pitfalls"]]
+    c = result.get("comparison")
+    if c:
+        ratio = (f"rate ratio {_ci(c, 'rate_ratio', 'rate_ratio_ci95')}" if c.get("rate_ratio")
+                 else "rate ratio —")
+        out += ["", f"{c['groups'][0]} against {c['groups'][1]}: {ratio} ({c['per']}), equal-rate "
+                    f"{_pv(c.get('equal_rate_p'))}; CVs "
+                    + (f"{c['cv'][0]:.2f} and {c['cv'][1]:.2f}, equal-CV {_pv(c['equal_cv_p'])}"
+                       if c.get("cv") else "—")
+                    + f". {c['rate_method']}; {c.get('cv_method') or 'no CV test'}."]
     if result.get("groups") and result.get("pooled_note"):
         out += ["", result["pooled_note"]]
     return "\n".join(out).rstrip() + "\n"
