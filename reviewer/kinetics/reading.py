@@ -72,11 +72,19 @@ def _exp_waits(k: int) -> str:
     return f"{k} exponential wait{'s' if k != 1 else ''}"
 
 
+def _frame_aware(s: dict, key: str) -> str:
+    """The frame-aware figure's key when the summary has it (waits in whole frames), else key."""
+    aware = {"gof_p_exponential": "gof_p_exponential_frames",
+             "gamma_vs_exponential_p": "gamma_vs_exponential_p_frames",
+             "gamma_shape": "gamma_shape_frames"}.get(key)
+    return aware if aware and s.get(aware) is not None else key
+
+
 def weighed_tests(s: dict) -> dict[str, float]:
     """The p values the reading weighs (name -> p), only those the summary has."""
     out = {}
     for key, name in TESTS:
-        v = s.get(key)
+        v = s.get(_frame_aware(s, key))
         if isinstance(v, dict):
             v = v.get("p")
         if v is not None:
@@ -143,14 +151,16 @@ def _changes(s: dict, lv: _Level) -> str | None:
 def _regularity(s: dict, lv: _Level) -> str:
     k, cv, band = s["intervals"], s["interval_cv"], s["poisson_cv_range95"]
     lo, hi = band
-    shape, lr, ks = s.get("gamma_shape"), s.get("gamma_vs_exponential_p"), s.get("gof_p_exponential")
+    shape, lr, ks = (s.get(_frame_aware(s, key)) for key in
+                     ("gamma_shape", "gamma_vs_exponential_p", "gof_p_exponential"))
+    aware = " (frames)" if s.get("gof_p_exponential_frames") is not None else ""
     cv_off = lv.low(s.get("interval_cv_p_poisson"))
     regular = (cv_off and cv < 1) or (lv.low(lr) and shape is not None and shape > 1)
     irregular = (cv_off and cv > 1) or (lv.low(lr) and shape is not None and shape < 1)
     cv_txt = f"CV {cv:.2f}, {lo:.2f}–{hi:.2f} expected for {_exp_waits(k)} (95 %)"
-    shape_txt = (f"; gamma shape {shape:.2g}, gamma vs exponential {_p(lr)}"
+    shape_txt = (f"; gamma shape{aware} {shape:.2g}, gamma vs exponential{aware} {_p(lr)}"
                  if shape is not None and lr is not None else "")
-    ks_txt = f"; KS {_p(ks)}" if ks is not None else ""
+    ks_txt = f"; KS{aware} {_p(ks)}" if ks is not None else ""
     tests = f"({cv_txt}{shape_txt}{ks_txt}; {lv.text()})"
     if regular and irregular:
         return f"The tests disagree about the spread of the waits {tests}: no reading."
@@ -159,7 +169,7 @@ def _regularity(s: dict, lv: _Level) -> str:
     if irregular:
         return f"Waits more irregular than Poisson arrivals {tests}."
     share = (s.get("frame_s") or 0) / s["interval_mean_s"] if s.get("interval_mean_s") else 0
-    if lv.low(ks) and share > KS_FRAME_SHARE:
+    if lv.low(ks) and share > KS_FRAME_SHARE and not aware:
         return (f"No clear departure from exponential waits: only the KS test rejects {tests}, "
                 f"and waits in whole frames (1 frame = {share:.0%} of the mean wait) make it "
                 "reject too often.")

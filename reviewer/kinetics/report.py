@@ -124,6 +124,9 @@ ROWS = (
     ("gamma fit: scale", lambda s: _g(s.get("gamma_scale_s"), " s")),
     ("gamma vs exponential: LR p", lambda s: _p(s.get("gamma_vs_exponential_p"))),
     ("exponential GOF p (KS, bootstrap)", lambda s: _p(s.get("gof_p_exponential"))),
+    ("in whole frames: gamma shape", lambda s: _g(s.get("gamma_shape_frames"))),
+    ("in whole frames: gamma vs exp. LR p", lambda s: _p(s.get("gamma_vs_exponential_p_frames"))),
+    ("in whole frames: exponential GOF p", lambda s: _p(s.get("gof_p_exponential_frames"))),
     ("velocity = k/span x layer height  [95 %]",
      lambda s: _ci(s, "velocity_nm_per_s", "velocity_ci95_nm_per_s", " nm/s")
      if s.get("velocity_nm_per_s") is not None else "no layer height given"),
@@ -169,6 +172,8 @@ def render(result: dict) -> str:
                    f"{first.get('rate_renewal_method') or 'no renewal interval'}. Velocity uses "
                    "k/span; (k - 1)/span is the unbiased rate for Poisson arrivals. CV coverage: "
                    "lowest over exponential, gamma(4) and gamma(0.3) waits in our simulation.")
+        if first.get("frames_method"):
+            out.append(f"Frames: {first['frames_method']}.")
         cp = first.get("change_point")
         shuffles = (f"p from the same {cp['simulations']} shuffles" if cp and cp["simulations"]
                     else "no p value")

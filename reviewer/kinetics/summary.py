@@ -6,7 +6,7 @@ import math
 
 import numpy as np
 
-from reviewer.kinetics import censored, reading, renewal, stats, trend
+from reviewer.kinetics import censored, frames, reading, renewal, stats, trend
 
 BOOT_RESAMPLES = 9_999  # bootstrap resamples for the CV interval
 GOF_SAMPLES = 9_999     # parametric-bootstrap samples for the exponential goodness of fit
@@ -149,6 +149,7 @@ def summarise(times_s, duration_s: float | None = None, layer_nm: float | None =
             out["velocity_ci95_nm_per_s"] = _pair(*out["rate_ci95_per_s"], out["layer_nm"])
     renewal.add_renewal(out, x, seed, budget)
     censored.add_censored(out, x)
+    frames.add_frames(out, x, frame_s, seed, n_gof, budget)
     _beyond_renewal(out, t, x, seed, frame_s)
     out["reading"] = reading.sentence(out)
     out["pitfalls"] = reading.pitfalls(out, frame_s=frame_s, zero_intervals=zeros,
