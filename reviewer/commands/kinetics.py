@@ -46,7 +46,9 @@ def register(subparsers) -> None:
                     "exact intervals, exponential and gamma fits, and a plain reading.",
         epilog="Named layer heights: " + "; ".join(sp.describe() for sp in SPACINGS.values()),
         formatter_class=argparse.RawDescriptionHelpFormatter)
-    p.add_argument("events", metavar="EVENTS.csv", help="event table written by `reviewer export`")
+    p.add_argument("events", metavar="EVENTS.csv",
+                   help="event table written by `reviewer export`; or a run table (columns table, "
+                        "temperature_K or temperature_C, run) for an Arrhenius fit across runs")
     p.add_argument("--label", default=None, help="only events with this label")
     p.add_argument("--status", type=_statuses, default=("accepted",), metavar="S[,S]",
                    help="statuses to use (default: accepted)")
@@ -135,10 +137,22 @@ def _comparison(parts, summaries, sel, info, args) -> dict | None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from reviewer.kinetics import read_events, summarise
+    from reviewer.kinetics import arrhenius, read_events, summarise
     from reviewer.kinetics.read import select_events
     from reviewer.kinetics.report import render
 
+    if arrhenius.is_run_table(args.events):
+        if args.plot or args.by or args.roi:
+            raise BadInput(f"{args.events}: a run table takes no --plot, --by or --roi "
+                           "(run kinetics on each table for those)")
+        runs = arrhenius.summarise_runs(args.events, args.status, args.label, args.seed)
+        if args.json:
+            from reviewer.kinetics.report import finite
+
+            print(json.dumps(finite(runs), indent=2, allow_nan=False, ensure_ascii=False))
+        else:
+            print(arrhenius.render_runs(runs), end="")
+        return 0
     df = read_events(args.events)
     sel = select_events(df, args.label, args.status)
     info = df.attrs.get("movie", {})
