@@ -12,7 +12,7 @@ import math
 import warnings
 
 import numpy as np
-from scipy import optimize, stats
+from scipy import optimize, special, stats
 
 
 def exponential_scale(x: np.ndarray, censored: float) -> float:
@@ -30,9 +30,13 @@ def exposure_rate_ci95(k: int, exposure: float) -> tuple[float, float]:
 def gamma_fit(x: np.ndarray, censored: float, start: tuple[float, float]) -> tuple[float, float]:
     """(shape, scale) of a gamma from complete waits and one right-censored wait, location 0."""
 
+    k, sum_x, sum_log = x.size, float(np.sum(x)), float(np.sum(np.log(x)))
+
     def nll(p: np.ndarray) -> float:
         a, s = math.exp(p[0]), math.exp(p[1])
-        v = -(np.sum(stats.gamma.logpdf(x, a, scale=s)) + stats.gamma.logsf(censored, a, scale=s))
+        # the complete waits through their sufficient statistics (sum and sum of logs)
+        complete = (a - 1) * sum_log - sum_x / s - k * (special.gammaln(a) + a * math.log(s))
+        v = -(complete + stats.gamma.logsf(censored, a, scale=s))
         return float(v) if math.isfinite(v) else 1e300
 
     with warnings.catch_warnings():

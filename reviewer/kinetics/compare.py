@@ -42,9 +42,12 @@ def cvs(x1: np.ndarray, x2: np.ndarray, seed: int) -> dict | None:
     observed = abs(float(cv(a) - cv(b)))
     pooled = np.concatenate([a, b])
     rng = np.random.default_rng([seed, pooled.size, 4])
-    perms = rng.permuted(np.tile(pooled, (PERMUTATIONS, 1)), axis=1)
-    null = np.abs(cv(perms[:, :a.size]) - cv(perms[:, a.size:]))
-    p = (1 + np.sum(null >= observed - 1e-12)) / (PERMUTATIONS + 1)
+    null = []
+    rows = max(1, 2_000_000 // pooled.size)  # permutations held at once (bounded memory)
+    for lo in range(0, PERMUTATIONS, rows):
+        perms = rng.permuted(np.tile(pooled, (min(rows, PERMUTATIONS - lo), 1)), axis=1)
+        null.append(np.abs(cv(perms[:, :a.size]) - cv(perms[:, a.size:])))
+    p = (1 + np.sum(np.concatenate(null) >= observed - 1e-12)) / (PERMUTATIONS + 1)
     return {"cv": [float(cv(x1)), float(cv(x2))], "equal_cv_p": float(p),
             "cv_method": f"permutation test of |CV1 - CV2| on mean-scaled waits "
                          f"({PERMUTATIONS} permutations, seed {seed})"}
