@@ -14,7 +14,7 @@ import math
 import warnings
 
 import numpy as np
-from scipy import optimize, stats
+from scipy import optimize, special, stats
 
 GOF_SIMULATIONS = 999
 GOF_BUDGET = 4_000_000  # simulated tables x waits
@@ -23,8 +23,8 @@ GOF_BUDGET = 4_000_000  # simulated tables x waits
 def integrated_cdf(x: np.ndarray, shape: float, scale: float) -> np.ndarray:
     """G(x) = integral_0^x F(u) du of a gamma(shape, scale) CDF F (0 for x <= 0)."""
     x = np.maximum(np.asarray(x, float), 0.0)
-    return (x * stats.gamma.cdf(x, shape, scale=scale)
-            - shape * scale * stats.gamma.cdf(x, shape + 1, scale=scale))
+    z = x / scale
+    return x * special.gammainc(shape, z) - shape * scale * special.gammainc(shape + 1, z)
 
 
 def frame_probabilities(m: np.ndarray, shape: float, scale: float, frame: float) -> np.ndarray:
@@ -62,8 +62,8 @@ def fit(x: np.ndarray, frame: float, shape: float | None = None) -> tuple[float,
             return float(shape), float(math.exp(res.x)), -float(res.fun)
         cv = float(np.std(values)) / (mean / frame) if mean > 0 else 1.0
         a0 = min(max(1.0 / max(cv, 0.05) ** 2, 0.05), 400.0)
-        res = optimize.minimize(nll, np.log([a0, mean / a0]), method="Nelder-Mead",
-                                options={"xatol": 1e-9, "fatol": 1e-11, "maxiter": 4000})
+        res = optimize.minimize(nll, np.log([a0, mean / a0]), method="L-BFGS-B",
+                                options={"ftol": 1e-13, "gtol": 1e-8, "maxiter": 500})
     a, s = np.exp(res.x)
     return float(a), float(s), -float(res.fun)
 
