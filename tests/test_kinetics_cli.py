@@ -114,7 +114,7 @@ def test_wiring_every_figure_reaches_the_json(tmp_path, capsys):
     assert rel(out["gof_p_exponential"], gof.pvalue) < 1e-6
     assert rel(out["velocity_nm_per_s"], 0.2 * k / span) < 1e-6
     assert out["groups"] is None
-    assert "regular than random" in out["reading"]  # gamma(3) waits: CV near 0.58
+    assert "more regular than Poisson arrivals" in out["reading"]  # gamma(3) waits: CV near 0.58
 
 
 @pytest.mark.parametrize("case, expect", [
@@ -226,7 +226,7 @@ def test_plot_png(tmp_path, capsys):
     assert main(["kinetics", str(path), "--by", "label", "--plot", str(png)]) == 0
     capsys.readouterr()
     with Image.open(png) as img:  # Pillow reads back what we wrote
-        assert img.format == "PNG" and img.size == (1040, 2 * 340)
+        assert img.format == "PNG" and img.size == (3 * 520, 2 * 340)
         colours = {c for _, c in img.convert("RGB").getcolors(1 << 20)}
     assert (200, 60, 40) in colours and (30, 120, 60) in colours  # exponential and gamma curves
 

@@ -18,11 +18,12 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
-from scipy.cluster.hierarchy import fcluster, linkage
 
 from reviewer.errors import BadInput
+from reviewer.kinetics.places import single_linkage
 
 DEFAULT_RADIUS_PX = 20.0
+MAX_REGIONS = 20  # regions analysed one by one; the smaller ones are listed together
 NO_POSITION = "no position"
 OUTSIDE = "outside ROIs"
 
@@ -49,25 +50,34 @@ def _unplaced(df: pd.DataFrame) -> np.ndarray:
     return ~(np.isfinite(df["x"].to_numpy(float)) & np.isfinite(df["y"].to_numpy(float)))
 
 
-def by_region(df: pd.DataFrame, radius: float = DEFAULT_RADIUS_PX) -> list[tuple[str, pd.DataFrame]]:
+def by_region(df: pd.DataFrame, radius: float = DEFAULT_RADIUS_PX,
+              max_regions: int = MAX_REGIONS) -> list[tuple[str, pd.DataFrame]]:
     """Single-linkage clusters of (x, y): events closer than `radius` pixels (in a chain) share a group.
 
-    Groups are named by their mean position, largest group first.
+    Groups are named by their mean position, largest group first; beyond `max_regions` the smaller
+    regions are put together in one group marked `attrs["skip"]` (not analysed: it mixes places).
     """
     unplaced = _unplaced(df)
     placed = df[~unplaced]
     groups: list[tuple[str, pd.DataFrame]] = []
-    if len(placed) == 1:
-        labels = np.ones(1, int)
-    elif len(placed) > 1:
-        xy = placed[["x", "y"]].to_numpy(float)
-        labels = fcluster(linkage(xy, method="single"), t=radius, criterion="distance")
-    else:
-        labels = np.zeros(0, int)
-    ids = sorted(set(labels.tolist()), key=lambda c: (-np.sum(labels == c), c))
-    for i, c in enumerate(ids, 1):
-        part = placed[labels == c]
-        groups.append((f"region {i} (x {part['x'].mean():.0f}, y {part['y'].mean():.0f})", part))
+    labels = single_linkage(placed[["x", "y"]].to_numpy(float), radius)
+    counts = np.bincount(labels) if labels.size else np.zeros(0, int)
+    ranked = np.lexsort((np.arange(counts.size), -counts))  # largest first, then first seen
+    by_cluster = np.argsort(labels, kind="stable")
+    starts = np.concatenate([[0], np.cumsum(counts)])
+    x, y = placed["x"].to_numpy(float), placed["y"].to_numpy(float)
+    for i, c in enumerate(ranked[:max_regions], 1):
+        rows = np.sort(by_cluster[starts[c]:starts[c + 1]])
+        groups.append((f"region {i} (x {x[rows].mean():.0f}, y {y[rows].mean():.0f})",
+                       placed.iloc[rows]))
+    rest = ranked[max_regions:]
+    if rest.size:
+        rows = np.flatnonzero(np.isin(labels, rest))
+        part = placed.iloc[rows].copy()
+        part.attrs["skip"] = (f"not analysed: {rest.size} smaller regions ({rows.size} events, at "
+                              f"most {int(counts[rest].max())} in one); waits pooled across places "
+                              "would mix processes")
+        groups.append((f"{rest.size} smaller regions", part))
     if unplaced.any():
         groups.append((NO_POSITION, df[unplaced]))
     return groups

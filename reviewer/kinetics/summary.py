@@ -6,12 +6,13 @@ import math
 
 import numpy as np
 
-from reviewer.kinetics import reading, stats
+from reviewer.kinetics import censored, frames, reading, renewal, stats, trend
 
 BOOT_RESAMPLES = 9_999  # bootstrap resamples for the CV interval
 GOF_SAMPLES = 9_999     # parametric-bootstrap samples for the exponential goodness of fit
 BOOT_BUDGET = 50_000_000  # resamples x intervals per CV interval (bounds the time on long tables)
 GOF_BUDGET = 4_000_000  # samples x intervals held in memory by scipy's goodness_of_fit at once
+GOF_BIG_SAMPLES = 999  # null samples of the asymptotic KS test on long tables
 MIN_CV = 1e-3           # below this the waits are taken as all equal: no gamma fit, no GOF
 
 
@@ -39,13 +40,42 @@ def _fit_gamma(out: dict, x: np.ndarray) -> None:
         out["gamma_shape_ci95"] = None
 
 
+def _beyond_renewal(out: dict, t: np.ndarray, x: np.ndarray, seed: int,
+                    frame_s: float | None) -> None:
+    """Trend, change of rate, gaps at either end, serial correlation, shortest wait (new keys)."""
+    k, span = x.size, out["span_s"]
+    out["alpha"] = reading.ALPHA
+    out["interval_min_s"] = float(np.min(x))
+    out["interval_min_frames"] = _num(float(np.min(x)) / frame_s) if frame_s else None
+    out["frame_s"] = _num(frame_s) if frame_s else None
+    out["rate_unbiased_per_s"] = (k - 1) / span if k >= 2 else None
+    out["velocity_rate"] = "rate_per_s (k/span)"
+    tt = trend.trend_tests(t, seed)
+    out["trend_laplace_u"] = _num(tt["laplace_u"]) if tt else None
+    out["trend_laplace_p"] = _num(tt["laplace_p"]) if tt else None
+    out["trend_method"] = (f"Laplace statistic on the {t.size - 2} events between the first and "
+                           f"the last, {tt['method']} (seed {seed})"
+                           if tt else None)
+    out["change_point"] = tt["change_point"] if tt else None
+    rate = out["rate_per_s"]
+    out["incubation_s"] = float(t[0]) if t[0] >= 0 else None
+    out["incubation_p"] = trend.gap_p(float(t[0]), rate) if t[0] >= 0 else None
+    out["onset_ci95_s"] = trend.onset_ci95(float(t[0]), 0.0, rate) if t[0] >= 0 else None
+    T = out["duration_s"]
+    out["tail_gap_s"] = max(0.0, T - float(t[-1])) if T else None
+    out["tail_gap_p"] = trend.gap_p(out["tail_gap_s"], rate) if T else None
+    lag = trend.lag1(x, seed)
+    out["lag1_r"], out["lag1_p"], out["lag1_method"] = lag if lag else (None, None, None)
+
+
 def summarise(times_s, duration_s: float | None = None, layer_nm: float | None = None, *,
               frame_s: float | None = None, seed: int = 0, n_boot: int = BOOT_RESAMPLES,
-              n_gof: int = GOF_SAMPLES, multi_frame_events: int = 0) -> dict:
+              n_gof: int = GOF_SAMPLES, multi_frame_events: int = 0, budget: float = 1.0) -> dict:
     """Waiting-time statistics of sorted event times (seconds).
 
     duration_s: the recording's length T (count rate n/T with its Garwood interval; None -> null).
     layer_nm: layer height (velocity = rate x height). frame_s: one frame (for the pitfall note).
+    budget: share of the resampling budgets for this call (many groups share one run's budget).
     Raises ValueError for fewer than two events, non-finite, decreasing or all-equal times.
     """
     t = np.asarray(times_s, dtype=float).ravel()
@@ -57,8 +87,9 @@ def summarise(times_s, duration_s: float | None = None, layer_nm: float | None =
     if (x < 0).any():
         raise ValueError("event times must be in increasing order")
     n, k = int(t.size), int(x.size)
-    n_gof = int(min(n_gof, max(199, GOF_BUDGET // k)))    # long tables: fewer samples (stated)
-    n_boot = int(min(n_boot, max(1999, BOOT_BUDGET // k)))
+    n_big = int(min(n_gof, GOF_BIG_SAMPLES))
+    n_gof = int(min(n_gof, max(199, GOF_BUDGET * budget // k)))  # long tables: fewer samples
+    n_boot = int(min(n_boot, max(1999, BOOT_BUDGET * budget // k)))  # (the methods state them)
     span = float(t[-1] - t[0])
     if span <= 0:
         raise ValueError(f"all {n} events at the same time: the span is zero")
@@ -81,7 +112,7 @@ def summarise(times_s, duration_s: float | None = None, layer_nm: float | None =
         "gamma_vs_exponential_p": None, "gof_p_exponential": None,
         "gof_method": (f"KS against an exponential with fitted scale, parametric bootstrap "
                        f"({n_gof} samples, seed {seed})"),
-        "poisson_cv_range95": None, "layer_nm": _num(layer_nm) if layer_nm else None,
+        "poisson_cv_range95": None, "interval_cv_p_poisson": None, "layer_nm": _num(layer_nm) if layer_nm else None,
         "velocity_nm_per_s": None, "velocity_ci95_nm_per_s": None, "seed": seed,
     }
     if out["exponential_scale_s"]:
@@ -90,21 +121,36 @@ def summarise(times_s, duration_s: float | None = None, layer_nm: float | None =
     if T is not None:
         out["count_rate_per_s"] = n / T
         out["count_rate_ci95_per_s"] = _pair(*stats.garwood_ci95(n), 1.0 / T)
-    if k >= 2 and sd is not None:
+    if k > stats.BIG_N and sd is not None:
+        out["interval_cv_ci95"] = _pair(*stats.cv_delta_ci95(x))
+        out["interval_cv_ci_method"] = f"normal approximation from sample moments (k > {stats.BIG_N})"
+    elif k >= 2 and sd is not None:
         lo, hi, method = stats.cv_bootstrap_ci95(x, seed, n_boot)
         out["interval_cv_ci95"] = _pair(lo, hi)
         out["interval_cv_ci_method"] = f"bootstrap {method}, {n_boot} resamples, seed {seed}"
+    if k >= 2 and sd is not None:
         band = reading.poisson_cv_range(k)
         out["poisson_cv_range95"] = list(band) if band else None
+        out["interval_cv_p_poisson"] = reading.poisson_cv_p(k, cv)
     zeros = int(np.sum(x == 0))
     spread = cv is not None and cv > MIN_CV  # waits that all agree leave nothing to fit
     if k >= 2 and zeros == 0 and spread:
         _fit_gamma(out, x)
-    if k >= 3 and spread:
+    if k > stats.BIG_N and spread:
+        out["gof_p_exponential"] = _num(stats.gof_exponential_p_asymptotic(x, seed, n_big))
+        out["gof_method"] = (f"KS against an exponential with fitted scale; sqrt(n) D against its "
+                             f"null simulated at {stats.GOF_REF_N} waits ({n_big} samples, seed "
+                             f"{seed}; k > {stats.BIG_N})")
+    elif k >= 3 and spread:
         out["gof_p_exponential"] = _num(stats.gof_exponential_p(x, seed, n_gof))
     if out["layer_nm"] is not None:
-        out["velocity_nm_per_s"] = out["rate_per_s"] * out["layer_nm"]
-        out["velocity_ci95_nm_per_s"] = [v * out["layer_nm"] for v in out["rate_ci95_per_s"]]
+        out["velocity_nm_per_s"] = _num(out["rate_per_s"] * out["layer_nm"])
+        if out["rate_ci95_per_s"]:
+            out["velocity_ci95_nm_per_s"] = _pair(*out["rate_ci95_per_s"], out["layer_nm"])
+    renewal.add_renewal(out, x, seed, budget)
+    censored.add_censored(out, x)
+    frames.add_frames(out, x, frame_s, seed, n_gof, budget)
+    _beyond_renewal(out, t, x, seed, frame_s)
     out["reading"] = reading.sentence(out)
     out["pitfalls"] = reading.pitfalls(out, frame_s=frame_s, zero_intervals=zeros,
                                        multi_frame_events=multi_frame_events)
