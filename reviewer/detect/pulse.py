@@ -87,6 +87,7 @@ def pulse_chunk(tiles: np.ndarray, lo: int, hi: int, tile: int, gain: float | No
             g = (inv * (1.0 / (BASE * np.sqrt(1.0 / d + 1.0 / BASE)))).astype(np.float32)
             if robust and scale is None:  # robust scale of the pulse-entry z (1 for pure shot noise)
                 sub = np.abs((p[::4] - before[::4]) * g).ravel()
+                sub = sub[sub > 0]  # exact zeros: held (blanked) frames
                 scale = 1.0  # too few values for a stable median: trust the shot-noise model
                 if sub.size >= MIN_SCALE_VALUES:
                     scale = 1.4826 * float(np.partition(sub, sub.size // 2)[sub.size // 2]) or 1.0

@@ -164,7 +164,9 @@ def _maps(xn, lo, hi, windows, outer, inv_sd, robust=True, ws: Scratch | None = 
                                     else 1.0 / step_weight(w, outer)[1])
             if robust and t.size > 100:  # robust scale of the z values, from a subsample
                 sub = np.abs(t[:: max(1, (j1 - j0) // 32)] * gain).ravel()
-                scale = 1.4826 * float(np.partition(sub, sub.size // 2)[sub.size // 2])
+                sub = sub[sub > 0]  # exact zeros: held (blanked) frames on both sides
+                scale = 1.4826 * float(np.partition(sub, sub.size // 2)[sub.size // 2]) \
+                    if sub.size > 100 else 0.0
                 if scale > 0:
                     gain = gain * np.float32(1.0 / scale)
             t *= gain

@@ -24,6 +24,7 @@ from reviewer.detect.statistics import (
 from reviewer.errors import BadInput
 
 DRIFT_EVERY = 2048  # frames per drift estimate
+HOLD = 24  # a blanked frame is replaced by the mean of this many frames before it
 
 
 class ScanCancelled(Exception):
@@ -73,6 +74,12 @@ class _Scanner:
         self.drift = np.zeros(2)
         self.mean_sum = np.zeros((self.gy, self.gx))
         self.mean_rows = 0
+        self.normed = 0        # absolute index of the first row not yet normalised
+        self.head_blank: list[int] = []  # blanked frames before the first good one
+        self.seen_good = False
+        self.nonfinite = 0     # non-finite pixels masked
+        self.nonfinite_frames = 0
+        self.last_tiles: np.ndarray | None = None
         f32 = np.float32
         self.f = {name: np.zeros(n, f32) for name in ("smax", "x", "y", "frac", "level", "jump",
                                                       "drift_y", "drift_x")}
@@ -92,33 +99,94 @@ class _Scanner:
         if self.fill + k > len(self.buf):
             self.buf = np.concatenate([self.buf, np.empty_like(self.buf[: k])])
         xn = self.buf[self.fill: self.fill + k]
-        xn[...] = bin_block(block, self.tile, self.gy, self.gx)
-        # beam level: total over the field against the first frames' (a local change of a few
-        # hundred px moves the total little; a beam change moves every tile)
-        total = xn.reshape(k, -1).sum(axis=1, dtype=np.float64)
-        if not self.ref_total:
-            self.ref_total = float(np.median(total)) or 1.0
-            lv = total / self.ref_total
-            self._remember(np.sort(lv)[k // 4: 3 * k // 4 + 1])
-            self.ref0 = self._recent_median() or 1.0
-        level = total / self.ref_total
-        ref = self._recent_median() or self.ref0
-        good = (np.abs(level / ref - 1.0) <= self.s.blank_level) & (level != 0)
-        if good.all():
-            xn *= (self.ref0 / level).astype(np.float32)[:, None, None]
+        if block.dtype.kind in "fc" and not np.isfinite(block).all():
+            xn[...] = self._masked(block)
         else:
-            scale = np.where(good, self.ref0 / np.where(level != 0, level, 1.0), 1.0)
-            xn *= scale.astype(np.float32)[:, None, None]
-            for i in np.flatnonzero(~good):  # blanked frames: hold the last good frame
-                self.f["blank"][start + i] = 1
-                if self.fill + i > 0:
-                    xn[i] = self.buf[self.fill + i - 1]
+            xn[...] = bin_block(block, self.tile, self.gy, self.gx)
+        # beam level: total over the field (a local change of a few hundred px moves the total
+        # little; a beam change moves every tile); kept raw until the rows are normalised
+        self.f["level"][start: start + k] = xn.reshape(k, -1).sum(axis=1, dtype=np.float64)
         self.fill += k
-        self._remember(level[good][::4])
-        self.f["level"][start: start + k] = level / self.ref0
         end = self.base + self.fill
         if end - self.scored >= self.s.chunk + self.ctx:
             self._score(end - self.ctx)
+
+    def _masked(self, block: np.ndarray) -> np.ndarray:
+        """Tile sums of frames with non-finite pixels: those pixels are left out and each tile's
+        sum scaled up by the share of its pixels that are finite; a tile with none holds its last
+        finite value (or the frame's median tile). Frames with no finite pixel stay NaN (blanked)."""
+        fin = np.isfinite(block)
+        self.nonfinite += int(fin.size - np.count_nonzero(fin))
+        self.nonfinite_frames += int(np.count_nonzero(~fin.reshape(len(block), -1).all(axis=1)))
+        t = self.tile
+        sums = bin_block(np.where(fin, block, 0).astype(np.float32), t, self.gy, self.gx)
+        cnt = bin_block(fin.astype(np.uint8), t, self.gy, self.gx)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            sums = np.where(cnt > 0, sums * np.float32(t * t) / cnt, np.nan).astype(np.float32)
+        for row in sums:
+            hole = np.isnan(row)
+            if not hole.any():
+                self.last_tiles = row.copy()
+            elif hole.all():
+                row[:] = 0  # no finite pixel: a level of 0 marks the frame blanked
+            else:
+                fillv = self.last_tiles if self.last_tiles is not None else None
+                row[hole] = np.nanmedian(row) if fillv is None else fillv[hole]
+                self.last_tiles = row.copy()
+        return sums
+
+    def _elect_reference(self, totals: np.ndarray) -> None:
+        """The beam reference from the first frames: the median total of the frames within
+        blank_level of the bright end (the 90th percentile), so blanked or non-finite frames, even
+        most of the first frames, never set it."""
+        t = totals[np.isfinite(totals) & (totals > 0)]
+        if not len(t):
+            return
+        top = float(np.quantile(t, 0.9))
+        near = t[np.abs(t / top - 1.0) <= self.s.blank_level]
+        self.ref_total = float(np.median(near)) or 1.0
+        lv = near / self.ref_total
+        self._remember(lv)
+        self.ref0 = self._recent_median() or 1.0
+
+    def _normalise(self) -> None:
+        """Scale the rows not yet normalised by the beam level (in order, 64 rows at a time against
+        the recent good frames' level) and hold blanked frames (the mean of the frames before, or
+        of the first good ones for blanked frames at the start)."""
+        while self.normed < self.base + self.fill:
+            a = self.normed
+            b = min(self.base + self.fill, a + 64)
+            if not self.ref_total:
+                self._elect_reference(self.f["level"][: self.base + self.fill].astype(np.float64))
+            total = self.f["level"][a:b].astype(np.float64)
+            xn = self.buf[a - self.base: b - self.base]
+            ref_total = self.ref_total or 1.0
+            level = total / ref_total
+            ref = self._recent_median() or self.ref0 or 1.0
+            with np.errstate(invalid="ignore"):
+                good = np.isfinite(level) & (np.abs(level / ref - 1.0) <= self.s.blank_level) \
+                    & (level != 0) & (self.ref_total > 0)
+            scale = np.where(good, (self.ref0 or 1.0) / np.where(good, level, 1.0), 1.0)
+            xn *= scale.astype(np.float32)[:, None, None]
+            self.f["blank"][a:b] = ~good
+            first = int(np.argmax(good)) if good.any() else len(good)
+            if not self.seen_good:
+                self.head_blank.extend(range(a, a + first))
+                if first < len(good):  # blanked start: hold the mean of the first good frames
+                    hold = xn[first:][good[first:]][:HOLD].mean(axis=0)
+                    self.buf[max(self.head_blank[0] - self.base, 0) if self.head_blank else 0:
+                             a - self.base + first] = hold
+                    self.head_blank = []
+                    self.seen_good = True
+            if self.seen_good:
+                for i in np.flatnonzero(~good[first:]) + first:
+                    # hold the mean of the frames before (one frozen frame would carry a single
+                    # frame's noise through every window over a long blank)
+                    r = a - self.base + i
+                    xn[i] = self.buf[max(r - HOLD, 0): r].mean(axis=0)
+            self._remember(level[good][::4])
+            self.f["level"][a:b] = np.where(np.isfinite(level), level, np.nan) / (self.ref0 or 1.0)
+            self.normed = b
 
     def _remember(self, levels: np.ndarray) -> None:
         """Keep the last 64 good frames' levels (a ring) for the blank test's reference."""
@@ -138,11 +206,13 @@ class _Scanner:
             self._score(end)
 
     def _score(self, upto: int) -> None:
+        self._normalise()
         xn = self.buf[: self.fill]
         lo, hi = self.scored - self.base, upto - self.base
         w0 = self.s.windows[0]
-        if self.gain is None:  # shot-noise gain measured once, on the first frames
-            self.gain = noise_gain(xn)
+        if self.gain is None:  # shot-noise gain measured once, on the first good frames
+            good = np.flatnonzero(self.f["blank"][self.base: self.base + self.fill] == 0)
+            self.gain = noise_gain(xn[good[:257]] if len(good) >= 2 else xn)
         inv_sd = 1.0 / noise_sd(xn, self.gain)  # the means follow the scene
         cs = score_chunk(xn, lo, hi, self.s.windows, self.tile, self.s.outer, inv_sd,
                          self.scratch)
@@ -201,7 +271,11 @@ class _Scanner:
         f["gz"] = (t / max(sd * factor, 1e-9)).astype(np.float32)
         order = ["score"] + [k for k in f if k != "score"]
         meta = {"frames": self.n, "tile": self.tile, "grid": [self.gy, self.gx], "k_eff": k_eff,
-                "ref_level": self.ref0}
+                "ref_level": self.ref0, "nonfinite_pixels": self.nonfinite, "notices": []}
+        if self.nonfinite:
+            meta["notices"].append(
+                f"{self.nonfinite} non-finite pixels (NaN or infinity) in {self.nonfinite_frames} "
+                "frames were left out of the scan")
         return {k: f[k] for k in order}, meta
 
 
