@@ -85,7 +85,7 @@ def run(args: argparse.Namespace) -> int:
             cancel = threading.Event()
             try:
                 features, meta = compute_features(movie, settings, progress=bar.update,
-                                                  cancel=cancel)
+                                                  cancel=cancel, workdir=folder)
             except KeyboardInterrupt:
                 bar.close()
                 print("reviewer: scan interrupted; nothing was written", file=sys.stderr)

@@ -17,11 +17,14 @@ from reviewer.detect.stream import ScanCancelled, ScanResult, compute_features
 
 
 def scan_movie(movie, settings: DetectSettings | None = None,
-               progress: Callable[[int], None] | None = None, cancel=None) -> ScanResult:
+               progress: Callable[[int], None] | None = None, cancel=None,
+               workdir=None) -> ScanResult:
     """Read `movie` once and return its features and candidate events (raises ScanCancelled when
-    `cancel` (a threading.Event) is set, BadInput on an unusable movie)."""
+    `cancel` (a threading.Event) is set, BadInput on an unusable movie). With `workdir` (the
+    folder save_scan will be given) the features are written to disk as they are made."""
     s = settings or DetectSettings()
-    features, meta = compute_features(movie, s, progress=progress, cancel=cancel)
+    features, meta = compute_features(movie, s, progress=progress, cancel=cancel,
+                                      workdir=workdir)
     candidates = propose(features, s, movie.timing)
     return ScanResult(features=features, candidates=candidates, settings=s.to_dict(), meta=meta)
 

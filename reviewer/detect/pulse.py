@@ -110,10 +110,20 @@ def pulse_chunk(tiles: np.ndarray, lo: int, hi: int, tile: int, gain: float | No
     return out
 
 
-@lru_cache(maxsize=16)
+CALIBRATION_GRID = 32  # the null calibration runs on at most this many tiles a side
+
+
 def null_pulse_tests(gy: int, gx: int) -> float:
     """Effective number of independent tests per frame of the pulse maximum on a (gy, gx) tile
-    grid, measured once on simulated white Gaussian noise (fixed seed)."""
+    grid: measured on a grid of at most CALIBRATION_GRID tiles a side and scaled by the number of
+    tiles (one test per tile and duration), so its cost does not grow with the frame size."""
+    cy, cx = min(gy, CALIBRATION_GRID), min(gx, CALIBRATION_GRID)
+    return _simulated_pulse_tests(cy, cx) * (gy * gx) / (cy * cx)
+
+
+@lru_cache(maxsize=16)
+def _simulated_pulse_tests(gy: int, gx: int) -> float:
+    """Measured once on simulated white Gaussian noise (fixed seed) on a gy × gx grid."""
     rng = np.random.default_rng(54321)
     n = 2048
     x = (250.0 + np.sqrt(250.0) * rng.standard_normal((n, gy, gx))).astype(np.float32)

@@ -3,9 +3,11 @@ frames a chunk at a time with bounded memory, and keep compact per-frame feature
 
 from __future__ import annotations
 
+import shutil
 import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -13,7 +15,7 @@ import pandas as pd
 from reviewer.detect.drift import phase_shift
 from reviewer.detect.pulse import null_pulse_tests, pulse_chunk
 from reviewer.detect.reduce import Scratch, bin_block
-from reviewer.detect.scoring import noise_gain, noise_sd, score_chunk
+from reviewer.detect.scoring import noise_gain, noise_sd, score_bands
 from reviewer.detect.settings import DetectSettings
 from reviewer.detect.statistics import (
     calibrate_max,
@@ -24,6 +26,7 @@ from reviewer.detect.statistics import (
 from reviewer.errors import BadInput
 
 DRIFT_EVERY = 2048  # frames per drift estimate
+NEW_FEATURES = "features.new"  # subfolder of a scan folder where a running scan writes features
 HOLD = 24  # a blanked frame is replaced by the mean of this many frames before it
 
 
@@ -51,14 +54,18 @@ class _Scanner:
     """Carried state between blocks: a preallocated buffer of normalised tile sums (the frames being
     scored plus `ctx` frames of context each side), the beam-level reference, the noise gain."""
 
-    def __init__(self, n: int, shape: tuple[int, int], s: DetectSettings, path: str) -> None:
+    def __init__(self, n: int, shape: tuple[int, int], s: DetectSettings, path: str,
+                 block_rows: int = 64, workdir: Path | None = None) -> None:
         self.s = s
+        self.workdir = workdir
         self.n = n
         self.tile, self.gy, self.gx = _geometry(shape, s.tile, path)
-        # context rows kept each side of the frames being scored: the windows' reach, and more
-        # than the drift check's 2·w (scoring.trending)
-        self.ctx = max(1 + s.outer, 3) * max(s.windows)
-        cap = s.chunk + 3 * self.ctx + s.read_block
+        # context rows kept each side of the frames being scored: the windows' reach, and the
+        # drift check's 2·w (locate.trending)
+        self.ctx = max(1 + s.outer, 2) * max(s.windows) + 2
+        # frames scored at a time: fewer for large grids, so the buffer stays bounded
+        self.chunk = min(s.chunk, max(64, CHUNK_CELLS // (self.gy * self.gx)))
+        cap = self.chunk + 2 * self.ctx + min(s.read_block, block_rows)
         self.buf = np.empty((cap, self.gy, self.gx), np.float32)
         self.fill = 0          # rows of buf in use
         self.base = 0          # absolute index of buffer row 0
@@ -81,18 +88,26 @@ class _Scanner:
         self.nonfinite_frames = 0
         self.last_tiles: np.ndarray | None = None
         f32 = np.float32
-        self.f = {name: np.zeros(n, f32) for name in ("smax", "x", "y", "frac", "level", "jump",
-                                                      "drift_y", "drift_x")}
+        self.f = {name: self._alloc(name, n, f32) for name in (
+            "smax", "x", "y", "frac", "level", "jump", "drift_y", "drift_x")}
         self.f["x"][:] = np.nan
         self.f["y"][:] = np.nan
-        self.f["zw"] = np.zeros((n, len(s.windows)), f32)
-        self.f["best_window"] = np.zeros(n, np.int8)
-        self.f["sign"] = np.zeros(n, np.int8)
-        self.f["shift"] = np.zeros(n, np.int16)  # onset − frame where located
-        self.f["blank"] = np.zeros(n, np.uint8)
+        self.f["zw"] = self._alloc("zw", (n, len(s.windows)), f32)
+        self.f["best_window"] = self._alloc("best_window", n, np.int8)
+        self.f["sign"] = self._alloc("sign", n, np.int8)
+        self.f["shift"] = self._alloc("shift", n, np.int16)  # onset − frame where located
+        self.f["blank"] = self._alloc("blank", n, np.uint8)
         for name in ("pmax", "px", "py"):  # short-pulse statistic (pulse.py), best tile
-            self.f[name] = np.zeros(n, f32)
-        self.f["pdur"] = np.zeros(n, np.int8)
+            self.f[name] = self._alloc(name, n, f32)
+        self.f["pdur"] = self._alloc("pdur", n, np.int8)
+
+    def _alloc(self, name: str, shape, dtype) -> np.ndarray:
+        """A zeroed per-frame array: in RAM, or a memory-mapped .npy file in workdir (the features
+        go to disk as they are made, so memory does not grow with the number of frames)."""
+        if self.workdir is None:
+            return np.zeros(shape, dtype)
+        return np.lib.format.open_memmap(self.workdir / f"{name}.npy", mode="w+", dtype=dtype,
+                                         shape=shape if isinstance(shape, tuple) else (shape,))
 
     def feed(self, start: int, block: np.ndarray) -> None:
         k = len(block)
@@ -108,7 +123,7 @@ class _Scanner:
         self.f["level"][start: start + k] = xn.reshape(k, -1).sum(axis=1, dtype=np.float64)
         self.fill += k
         end = self.base + self.fill
-        if end - self.scored >= self.s.chunk + self.ctx:
+        if end - self.scored >= self.chunk + self.ctx:
             self._score(end - self.ctx)
 
     def _masked(self, block: np.ndarray) -> np.ndarray:
@@ -214,7 +229,7 @@ class _Scanner:
             good = np.flatnonzero(self.f["blank"][self.base: self.base + self.fill] == 0)
             self.gain = noise_gain(xn[good[:257]] if len(good) >= 2 else xn)
         inv_sd = 1.0 / noise_sd(xn, self.gain)  # the means follow the scene
-        cs = score_chunk(xn, lo, hi, self.s.windows, self.tile, self.s.outer, inv_sd,
+        cs = score_bands(xn, lo, hi, self.s.windows, self.tile, self.s.outer, inv_sd,
                          self.scratch)
         sl = slice(self.scored, upto)
         f = self.f
@@ -252,14 +267,24 @@ class _Scanner:
             self.buf[: self.fill - keep] = self.buf[keep: self.fill]
             self.fill -= keep
             self.base += keep
+    def _scalar(self, name: str, value: float) -> np.ndarray:
+        a = np.array(value)
+        if self.workdir is not None:
+            np.save(self.workdir / f"{name}.npy", a)
+        return a
+
     def features(self) -> tuple[dict[str, np.ndarray], dict]:
         f = self.f
         k_eff = float(np.median(self.k_medians)) if self.k_medians else 1.0
-        f["score"] = calibrate_max(f["smax"], k_eff).astype(np.float32)
-        f["k_eff"] = np.array(k_eff)
         k_pulse = null_pulse_tests(self.gy, self.gx)
-        f["pulse"] = calibrate_max(f["pmax"], k_pulse).astype(np.float32)
-        f["k_pulse"] = np.array(k_pulse)
+        f["score"] = self._alloc("score", self.n, np.float32)
+        f["pulse"] = self._alloc("pulse", self.n, np.float32)
+        for a in range(0, self.n, 1 << 20):  # in pieces: float64 temporaries stay small
+            b = min(self.n, a + (1 << 20))
+            f["score"][a:b] = calibrate_max(f["smax"][a:b], k_eff)
+            f["pulse"][a:b] = calibrate_max(f["pmax"][a:b], k_pulse)
+        f["k_eff"] = self._scalar("k_eff", k_eff)
+        f["k_pulse"] = self._scalar("k_pulse", k_pulse)
         w0 = self.s.windows[0]
         lev = np.log(np.clip(np.where(f["blank"] == 1, np.nan, f["level"]), 1e-6, None))
         lev = pd.Series(lev).ffill().bfill().to_numpy() if np.isnan(lev).any() else lev
@@ -267,8 +292,13 @@ class _Scanner:
         t = np.nan_to_num(step_statistic(lev, w0, self.s.outer))
         sd = robust_sigma(np.diff(lev)) / np.sqrt(2.0) if len(lev) > 2 else 0.0
         c, factor = step_weight(w0, self.s.outer)
-        f["gstep"] = (np.exp(t / (1.0 - c)) - 1.0).astype(np.float32)
-        f["gz"] = (t / max(sd * factor, 1e-9)).astype(np.float32)
+        f["gstep"] = self._alloc("gstep", self.n, np.float32)
+        f["gstep"][:] = np.exp(t / (1.0 - c)) - 1.0
+        f["gz"] = self._alloc("gz", self.n, np.float32)
+        f["gz"][:] = t / max(sd * factor, 1e-9)
+        for a in f.values():
+            if isinstance(a, np.memmap):
+                a.flush()
         order = ["score"] + [k for k in f if k != "score"]
         meta = {"frames": self.n, "tile": self.tile, "grid": [self.gy, self.gx], "k_eff": k_eff,
                 "ref_level": self.ref0, "nonfinite_pixels": self.nonfinite, "notices": []}
@@ -280,25 +310,34 @@ class _Scanner:
 
 
 BLOCK_BYTES = 32 << 20  # at most this much of raw frames per read (memory bound for large frames)
+CHUNK_CELLS = 1 << 22  # tile values scored at a time (frames × tiles), at least 64 frames
 
 
 def block_frames(movie, s: DetectSettings) -> int:
     """Frames per read: settings.read_block, fewer when the frames are large (a 2k×2k uint16 frame
     is 8 MiB, so 64 of them decoded at once would be 512 MiB)."""
     frame_bytes = movie.shape[0] * movie.shape[1] * np.dtype(movie.dtype).itemsize
-    return max(4, min(s.read_block, BLOCK_BYTES // max(frame_bytes, 1)))
+    return max(1, min(s.read_block, BLOCK_BYTES // max(frame_bytes, 1)))
 
 
 def compute_features(movie, settings: DetectSettings | None = None,
                      progress: Callable[[int], None] | None = None,
-                     cancel=None) -> tuple[dict[str, np.ndarray], dict]:
-    """Read `movie` once, in order, and return (features, meta)."""
+                     cancel=None, workdir=None) -> tuple[dict[str, np.ndarray], dict]:
+    """Read `movie` once, in order, and return (features, meta). With `workdir` (a scan folder, see
+    cache.save_scan) the per-frame features are memory-mapped .npy files in its NEW_FEATURES
+    subfolder, written as they are made; save_scan then only moves them into place."""
     s = settings or DetectSettings()
     if movie.n_frames < 1:
         raise BadInput(f"{movie.path}: the movie has no frames")
     t0 = time.perf_counter()
-    sc = _Scanner(movie.n_frames, tuple(movie.shape), s, str(movie.path))
-    for start, block in movie.iter_blocks(block_frames(movie, s), reuse=True):
+    per = block_frames(movie, s)
+    work = None
+    if workdir is not None:
+        work = Path(workdir) / NEW_FEATURES
+        shutil.rmtree(work, ignore_errors=True)
+        work.mkdir(parents=True)
+    sc = _Scanner(movie.n_frames, tuple(movie.shape), s, str(movie.path), per, work)
+    for start, block in movie.iter_blocks(per, reuse=True):
         if cancel is not None and cancel.is_set():
             raise ScanCancelled("scan cancelled")
         sc.feed(start, np.asarray(block))
