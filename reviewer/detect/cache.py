@@ -23,7 +23,7 @@ from reviewer.detect.stream import NEW_FEATURES, ScanResult
 FORMAT = 3  # 3: one memory-mappable .npy per feature (2: features.npz)
 # The detector's version: bump it whenever a change to reviewer/detect/ changes the features or the
 # candidates for the same movie and settings; a cached scan of another version is never reused.
-DETECTOR_VERSION = "2026.12-b"
+DETECTOR_VERSION = "2026.12-c"
 FEATURES = "features"
 
 
@@ -92,9 +92,13 @@ def load_scan(folder: str | os.PathLike) -> ScanResult | None:
             return None
         features = {p.stem: np.load(p, mmap_mode="r")
                     for p in sorted((folder / FEATURES).glob("*.npy"))}
-        cands = pd.read_csv(folder / "candidates.csv", dtype={"kind": str})
+        cands = pd.read_csv(folder / "candidates.csv", dtype={"kind": str, "cause": str},
+                            keep_default_na=False, na_values={"frame_end": [""], "x": [""],
+                                                              "y": [""], "time_s": [""]})
     except (OSError, ValueError, KeyError, json.JSONDecodeError):
         return None
+    if "cause" not in cands.columns:  # candidates written without the cause column
+        cands["cause"] = ""
     if "score" not in features or list(cands.columns) != list(CANDIDATE_COLUMNS):
         return None
     features = {"score": features.pop("score"), **features}

@@ -15,6 +15,7 @@ from reviewer.detect.statistics import effective_tests, step_weight
 
 DECIMATE_MIN_W = 8  # windows this long are evaluated every 2nd frame (their peaks are ≥ w wide)
 TREND_SPAN = 256  # frames over which a tile's trend is taken as constant
+GAIN_TILES = 8192  # tiles sampled for the shot-noise gain
 
 
 @dataclass
@@ -37,8 +38,9 @@ def noise_gain(xn: np.ndarray) -> float | None:
     mu = head.mean(axis=0)
     if len(head) < 2 or not np.all(mu > 0):
         return None
-    var = (1.4826 * _col_median(np.abs(np.diff(head, axis=0)))) ** 2 / 2.0
-    return float(np.median(var / mu))
+    step = max(1, head.shape[1] // GAIN_TILES)  # a median over tiles: a spread sample will do
+    var = (1.4826 * _col_median(np.abs(np.diff(head[:, ::step], axis=0)))) ** 2 / 2.0
+    return float(np.median(var / mu[::step]))
 
 
 def noise_sd(xn: np.ndarray, gain: float | None = None) -> np.ndarray:
@@ -210,8 +212,12 @@ def score_chunk(xn: np.ndarray, lo: int, hi: int, windows: tuple[int, ...], tile
     ws = scratch or Scratch()
     for k, z, step in _maps(xn, lo, hi, windows, outer, inv_sd, ws=ws):
         if k == 0:
+            # share of tiles that changed, around the field's typical change (a local change
+            # moves every other tile a little through the beam normalisation: not spread)
             own = z[:, : own_rows or z.shape[1]].reshape(len(z), -1)
-            big = np.abs(own, out=ws.get("abs", len(z), own.shape[1])) > 3.0
+            sub = own[:, :: max(1, own.shape[1] // 1024)]
+            centre = np.median(sub, axis=1).astype(np.float32)[:, None]
+            big = np.abs(np.subtract(own, centre, out=ws.get("abs", len(z), own.shape[1]))) > 3.0
             frac = np.count_nonzero(big, axis=1).astype(np.float32)
             frac = np.repeat(frac if own_rows else frac / np.float32(own.shape[1]), step)[:m]
         per_window[:, k] = _expand(pooled_absmax(z, ws), step, m)

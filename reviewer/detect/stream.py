@@ -12,13 +12,14 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from reviewer.detect.drift import phase_shift
+from reviewer.detect.drift import explained_shift, phase_shift
 from reviewer.detect.pulse import null_pulse_tests, pulse_chunk
 from reviewer.detect.reduce import Scratch, bin_block
 from reviewer.detect.scoring import noise_gain, noise_sd, score_bands
 from reviewer.detect.settings import DetectSettings
 from reviewer.detect.statistics import (
     calibrate_max,
+    raw_level,
     robust_sigma,
     step_statistic,
     step_weight,
@@ -27,6 +28,9 @@ from reviewer.errors import BadInput
 
 DRIFT_EVERY = 2048  # frames per drift estimate
 NEW_FEATURES = "features.new"  # subfolder of a scan folder where a running scan writes features
+JUMP_Z = 4.0  # frames whose calibrated score peaks above this get a whole-field shift estimate
+JUMP_CHECKS = 8  # at most this many per chunk, strongest first
+JUMP_EXPLAINED = 0.5  # the shift must explain this share of the change to count as a stage jump
 HOLD = 24  # a blanked frame is replaced by the mean of this many frames before it
 
 
@@ -60,9 +64,11 @@ class _Scanner:
         self.workdir = workdir
         self.n = n
         self.tile, self.gy, self.gx = _geometry(shape, s.tile, path)
-        # context rows kept each side of the frames being scored: the windows' reach, and the
-        # drift check's 2·w (locate.trending)
-        self.ctx = max(1 + s.outer, 2) * max(s.windows) + 2
+        # context rows kept each side of the frames being scored: the windows' reach, and more
+        # than the drift check's 2·w (locate.trending); just that for camera-size grids, where
+        # every row of context is megabytes
+        big = self.gy * self.gx > LARGE_GRID
+        self.ctx = max(1 + s.outer, 2 if big else 3) * max(s.windows) + (2 if big else 0)
         # frames scored at a time: fewer for large grids, so the buffer stays bounded
         self.chunk = min(s.chunk, max(64, CHUNK_CELLS // (self.gy * self.gx)))
         cap = self.chunk + 2 * self.ctx + min(s.read_block, block_rows)
@@ -203,6 +209,22 @@ class _Scanner:
             self.f["level"][a:b] = np.where(np.isfinite(level), level, np.nan) / (self.ref0 or 1.0)
             self.normed = b
 
+    def _stage_jumps(self, xn: np.ndarray, lo: int, cs) -> None:
+        w0 = self.s.windows[0]
+        sm = cs.smax
+        peak = sm > raw_level(JUMP_Z, cs.k_eff)
+        peak[1:] &= sm[1:] >= sm[:-1]
+        peak[:-1] &= sm[:-1] >= sm[1:]
+        peak |= cs.frac >= 0.5 * self.s.global_fraction
+        idx = np.flatnonzero(peak)
+        for j in idx[np.argsort(-sm[idx], kind="stable")][:JUMP_CHECKS]:
+            r = lo + j
+            if r - w0 < 0 or r + w0 > len(xn):
+                continue
+            shift, explained = explained_shift(xn[r - w0: r].mean(0), xn[r: r + w0].mean(0))
+            if explained >= JUMP_EXPLAINED:
+                self.f["jump"][self.scored + j] = shift * self.tile
+
     def _remember(self, levels: np.ndarray) -> None:
         """Keep the last 64 good frames' levels (a ring) for the blank test's reference."""
         v = levels[-len(self.recent):]
@@ -224,7 +246,6 @@ class _Scanner:
         self._normalise()
         xn = self.buf[: self.fill]
         lo, hi = self.scored - self.base, upto - self.base
-        w0 = self.s.windows[0]
         if self.gain is None:  # shot-noise gain measured once, on the first good frames
             good = np.flatnonzero(self.f["blank"][self.base: self.base + self.fill] == 0)
             self.gain = noise_gain(xn[good[:257]] if len(good) >= 2 else xn)
@@ -240,14 +261,9 @@ class _Scanner:
         f["pmax"][sl], f["px"][sl], f["py"][sl], f["pdur"][sl] = ps.pmax, ps.x, ps.y, ps.dur
         if hi - lo >= 32:
             self.k_medians.append(cs.k_eff)
-        # whole-field shift where many tiles changed at once (stage jump test)
-        half = 0.5 * self.s.global_fraction
-        for j in np.flatnonzero(cs.frac >= half)[:64]:
-            r = lo + j
-            if r - w0 < 0 or r + w0 > len(xn):
-                continue
-            dy, dx, _ = phase_shift(xn[r - w0: r].mean(0), xn[r: r + w0].mean(0), upsample=10)
-            f["jump"][self.scored + j] = np.hypot(dy, dx) * self.tile
+        # whole-field shift at the strongest changes and where many tiles changed at once (stage
+        # jump test): kept where the shift explains most of the change
+        self._stage_jumps(xn, lo, cs)
         # slow drift (a feature for the viewer, not used for scoring): shift of the mean image of
         # the last DRIFT_EVERY frames or more against the previous one's
         self.mean_sum += xn[lo:hi].sum(axis=0, dtype=np.float64)
@@ -311,6 +327,7 @@ class _Scanner:
 
 BLOCK_BYTES = 32 << 20  # at most this much of raw frames per read (memory bound for large frames)
 CHUNK_CELLS = 1 << 22  # tile values scored at a time (frames × tiles), at least 64 frames
+LARGE_GRID = 1 << 15  # tiles per frame above which context rows are kept to the minimum
 
 
 def block_frames(movie, s: DetectSettings) -> int:
