@@ -41,7 +41,8 @@ def _peaks(value: np.ndarray, mask: np.ndarray, radius: int) -> list[int]:
 CAUSES = ("stage", "blank", "beam", "unknown")  # a global event's cause, strongest first
 
 
-def global_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float) -> list[dict]:
+def global_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float,
+                  z_level: float | None = None) -> list[dict]:
     """Blanked frames, jumps of the mean level (beam current), whole-field shifts (stage jumps)
     and changes over a large share of the field, each with its cause. A level jump at a frame
     where the scene holds a significant local change but few tiles changed is that local change
@@ -56,7 +57,8 @@ def global_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float) -> 
     gz, gstep = np.abs(f["gz"]), np.abs(f["gstep"])
     shift = f["shift"] if "shift" in f else np.zeros(n, np.int16)
     reach = max(s.windows)
-    for t in _peaks(gz, (gz > z_thr) & (gstep > s.global_level), (1 + s.outer) * w0):
+    z_level = z_thr if z_level is None else z_level
+    for t in _peaks(gz, (gz > z_level) & (gstep > s.global_level), (1 + s.outer) * w0):
         # a local change starts at this frame (a located, significant frame whose onset is t ± 1)
         # while few tiles changed: that change moved the mean
         k = np.arange(max(t - reach, 0), min(t + reach + 1, n))
@@ -211,14 +213,26 @@ def pulse_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float,
     return out
 
 
+FA_GAIN = 1.0  # exceedance budget per expected false alarm (calibrated: bench_false_alarms.py)
+LEVEL_SHARE = 0.25  # share of that budget for beam-level jumps (a third test beside step and pulse)
+
+
+def threshold_for(s: DetectSettings, n: int, share: float = 1.0) -> float:
+    """The calibrated-z threshold for s.false_alarms expected false alarms over n frames (times
+    `share` for a statistic given part of the budget). Measured on event-free movies the step,
+    pulse and level tests together stay within a factor of 2 of s.false_alarms (overlapping
+    windows make neighbouring exceedances one candidate, which offsets having three tests)."""
+    return threshold_z(s.false_alarms * FA_GAIN * share, n) / s.sensitivity
+
+
 def propose(features: dict[str, np.ndarray], settings: DetectSettings | None = None,
             timing=None) -> pd.DataFrame:
     """Candidate events (columns CANDIDATE_COLUMNS, sorted by frame) from saved features."""
     s = settings or DetectSettings()
     f = features
     n = len(f["score"])
-    z_thr = threshold_z(s.alpha, n) / s.sensitivity
-    glob = global_events(f, s, z_thr)
+    z_thr = threshold_for(s, n)
+    glob = global_events(f, s, z_thr, threshold_for(s, n, LEVEL_SHARE))
     blocked = np.zeros((n, len(s.windows)), bool)  # per window length
     for g in glob:  # a disturbance of the whole field is never reported as growth
         # blanked frames are held and level jumps normalised away before scoring: only the
