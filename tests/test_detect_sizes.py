@@ -39,7 +39,16 @@ def test_calibration_on_a_capped_grid_matches_a_direct_one():
     scaled = scoring.null_tests(64, 64, (3, 10, 24), 0)
     assert scaled == pytest.approx(direct, rel=0.15)
     assert scoring.null_tests(20, 30, (3, 10, 24), 0) == scoring._simulated_tests(20, 30, (3, 10, 24), 0)
-    assert null_pulse_tests(64, 64) == pytest.approx(4 * _simulated_pulse_tests(32, 32))
+    assert null_pulse_tests(64, 64) == pytest.approx(4 * _simulated_pulse_tests(32, 32), rel=1e-3)
+
+
+def test_the_stored_calibrations_are_the_simulations():
+    from reviewer.detect.pulse import KNOWN_PULSE_TESTS
+
+    for (gy, gx, windows, outer), k in scoring.KNOWN_TESTS.items():
+        assert scoring._simulated_tests(gy, gx, windows, outer) == pytest.approx(k, rel=1e-3)
+    for (gy, gx), k in KNOWN_PULSE_TESTS.items():
+        assert _simulated_pulse_tests(gy, gx) == pytest.approx(k, rel=1e-3)
 
 
 def test_buffers_stay_bounded_for_camera_size_frames():

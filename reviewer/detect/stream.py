@@ -14,6 +14,7 @@ import pandas as pd
 
 from reviewer.detect.drift import explained_shift, phase_shift
 from reviewer.detect.pulse import null_pulse_tests, pulse_chunk
+from reviewer.detect.reading import read_ahead
 from reviewer.detect.reduce import Scratch, bin_block
 from reviewer.detect.scoring import noise_gain, noise_sd, score_bands
 from reviewer.detect.settings import DetectSettings
@@ -115,15 +116,19 @@ class _Scanner:
         return np.lib.format.open_memmap(self.workdir / f"{name}.npy", mode="w+", dtype=dtype,
                                          shape=shape if isinstance(shape, tuple) else (shape,))
 
-    def feed(self, start: int, block: np.ndarray) -> None:
-        k = len(block)
+    def reduce(self, block: np.ndarray) -> np.ndarray:
+        """Raw frames -> tile sums (non-finite pixels masked); the one pass over every pixel."""
+        if block.dtype.kind in "fc" and not np.isfinite(block).all():
+            return self._masked(block)
+        return bin_block(block, self.tile, self.gy, self.gx)
+
+    def feed(self, start: int, tiles: np.ndarray) -> None:
+        """Take the next frames' tile sums (reduce()); scores a chunk when enough have come."""
+        k = len(tiles)
         if self.fill + k > len(self.buf):
             self.buf = np.concatenate([self.buf, np.empty_like(self.buf[: k])])
         xn = self.buf[self.fill: self.fill + k]
-        if block.dtype.kind in "fc" and not np.isfinite(block).all():
-            xn[...] = self._masked(block)
-        else:
-            xn[...] = bin_block(block, self.tile, self.gy, self.gx)
+        xn[...] = tiles
         # beam level: total over the field (a local change of a few hundred px moves the total
         # little; a beam change moves every tile); kept raw until the rows are normalised
         self.f["level"][start: start + k] = xn.reshape(k, -1).sum(axis=1, dtype=np.float64)
@@ -354,12 +359,16 @@ def compute_features(movie, settings: DetectSettings | None = None,
         shutil.rmtree(work, ignore_errors=True)
         work.mkdir(parents=True)
     sc = _Scanner(movie.n_frames, tuple(movie.shape), s, str(movie.path), per, work)
-    for start, block in movie.iter_blocks(per, reuse=True):
-        if cancel is not None and cancel.is_set():
-            raise ScanCancelled("scan cancelled")
-        sc.feed(start, np.asarray(block))
-        if progress is not None:
-            progress(start + len(block))
+    blocks = read_ahead(movie, per, sc.reduce)
+    try:
+        for start, tiles in blocks:
+            if cancel is not None and cancel.is_set():
+                raise ScanCancelled("scan cancelled")
+            sc.feed(start, tiles)
+            if progress is not None:
+                progress(start + len(tiles))
+    finally:
+        blocks.close()  # the reader thread has stopped when this returns
     sc.finish()
     features, meta = sc.features()
     meta.update(shape=list(movie.shape), seconds=round(time.perf_counter() - t0, 3),
