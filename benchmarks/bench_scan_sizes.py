@@ -44,13 +44,14 @@ def write(path: Path, n: int, side: int) -> None:
     tmp = path.with_suffix(".tmp.npy")
     out = np.lib.format.open_memmap(tmp, mode="w+", dtype=np.uint16, shape=(n, side, side))
     p = max(8, side // 16)
-    for t in range(n):
-        lam = scene
-        if t >= n // 2:
-            lam = scene.copy()
-            lam[side // 3: side // 3 + p, side // 3: side // 3 + p] *= 0.6
-        noise = rng.standard_normal((side, side), dtype=np.float32)
-        out[t] = np.clip(np.rint(lam + np.sqrt(lam) * noise), 0, 65535)
+    after = scene.copy()
+    after[side // 3: side // 3 + p, side // 3: side // 3 + p] *= 0.6
+    per = max(1, (1 << 24) // (side * side))  # frames generated at a time
+    for t in range(0, n, per):
+        k = min(per, n - t)
+        lam = np.where((np.arange(t, t + k) >= n // 2)[:, None, None], after, scene)
+        noise = rng.standard_normal((k, side, side), dtype=np.float32)
+        out[t: t + k] = np.clip(np.rint(lam + np.sqrt(lam) * noise), 0, 65535)
     out.flush()
     del out
     os.replace(tmp, path)
