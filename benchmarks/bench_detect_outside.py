@@ -22,9 +22,9 @@ import time
 
 import numpy as np
 import pandas as pd
+from bench_detect_quality import match
 from skimage import data, transform
 
-from bench_detect_quality import match
 from reviewer.detect import scan_movie
 from reviewer.movie import ArrayMovie, Timing
 

@@ -1,8 +1,8 @@
 """Scoring and events: one streaming pass over a movie scores every frame and proposes candidates.
 
-    result = scan_movie(movie, DetectSettings(sensitivity=1.0), progress=cb, cancel=event)
+    result = scan_movie(movie, DetectSettings(false_alarms=0.05), progress=cb, cancel=event)
     result.features["score"]   # float32 per frame, a calibrated z (see DetectSettings for the threshold)
-    result.candidates          # frame, frame_end, time_s, kind, score, x, y
+    result.candidates          # frame, frame_end, time_s, kind, score, x, y, cause
     save_scan(result, folder); load_scan(folder); propose(features, settings, timing)
 """
 

@@ -106,7 +106,8 @@ def _best_pulses(x, inv, s0, s1, b0, n, scale, robust, bestv, bestarg, bestd, of
         g = (inv * (1.0 / (BASE * np.sqrt(1.0 / d + 1.0 / BASE)))).astype(np.float32)
         if robust and scale is None:  # robust scale of the pulse-entry z (1 for pure shot noise)
             sub = np.abs((p[::4] - before[::4]) * g).ravel()
-            sub = sub[sub > 0]  # exact zeros: held (blanked) frames
+            if np.count_nonzero(sub == 0) > 0.1 * sub.size:
+                sub = sub[sub > 0]  # many exact zeros: held (blanked) frames
             scale = 1.0  # too few values for a stable median: trust the shot-noise model
             if sub.size >= MIN_SCALE_VALUES:
                 scale = 1.4826 * float(np.partition(sub, sub.size // 2)[sub.size // 2]) or 1.0

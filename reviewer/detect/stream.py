@@ -42,7 +42,7 @@ class ScanCancelled(Exception):
 @dataclass
 class ScanResult:
     features: dict[str, np.ndarray]   # per-frame arrays, "score" first
-    candidates: pd.DataFrame           # frame, frame_end, time_s, kind, score, x, y (by frame)
+    candidates: pd.DataFrame           # CANDIDATE_COLUMNS (by frame)
     settings: dict                     # DetectSettings.to_dict()
     meta: dict = field(default_factory=dict)  # frames, shape, tile, k_eff, seconds, ...
 
