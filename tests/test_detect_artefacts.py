@@ -80,3 +80,18 @@ def test_a_particle_seen_three_frames_is_one_transient_with_its_span(seed):
     row = c.iloc[0]
     assert row["kind"] == "transient" and row["frame"] == 200, c
     assert 201 <= int(row["frame_end"]) <= 203, c
+
+
+def test_no_false_transients_after_a_stage_jump_on_a_real_image():
+    # scikit-image's bundled camera photograph (skimage.data, no download) as the specimen: a jump
+    # moves bright and dark areas across tiles, which must not read as particles afterwards
+    data = pytest.importorskip("skimage.data")
+    transform = pytest.importorskip("skimage.transform")
+    view = transform.resize(data.camera().astype(float), (160, 160), anti_aliasing=True)
+    view = np.clip(view / view.mean(), 0.05, None)
+    rng = np.random.default_rng(4)
+    lam = np.empty((900, 128, 128))
+    lam[:300] = 60 * view[16:144, 16:144]
+    lam[300:] = 60 * view[21:149, 16:144]   # 5 px stage jump at frame 300
+    c = scan_movie(ArrayMovie(rng.poisson(lam).astype(np.uint16))).candidates
+    assert list(zip(c["frame"], c["kind"], c["cause"], strict=True)) == [(300, "global", "stage")], c
