@@ -105,7 +105,9 @@ def test_bad_settings_and_tiny_frames_are_bad_input():
         DetectSettings(sensitivity=0)
     with pytest.raises(BadInput):
         scan_movie(ArrayMovie(np.zeros((50, 2, 2), np.uint16)))
-    assert DetectSettings.from_dict(DetectSettings(alpha=0.1).to_dict()) == DetectSettings(alpha=0.1)
+    assert DetectSettings.from_dict(DetectSettings(false_alarms=0.1).to_dict()) == \
+        DetectSettings(false_alarms=0.1)
+    assert DetectSettings.from_dict({"alpha": 0.2}).false_alarms == 0.2  # saved before the rename
 
 
 def test_large_frames_are_read_in_smaller_blocks():

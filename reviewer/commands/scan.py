@@ -24,9 +24,12 @@ def register(subparsers) -> None:
     p.add_argument("-o", "--output", metavar="CANDIDATES.csv", default=None,
                    help="where to write the candidates (default: <movie>.candidates.csv beside "
                         "the movie, or in the cache folder when that is not writable)")
+    p.add_argument("--false-alarms", type=positive_float, default=0.05, metavar="N",
+                   help="expected number of false alarms over the whole movie (default 0.05; "
+                        "1 or 10 find weaker events at that many false ones per movie)")
     p.add_argument("--sensitivity", type=positive_float, default=1.0,
-                   help="divides the threshold z* = Φ⁻¹(1 − 0.05/2N), N = frames (default 1: "
-                        "about 0.05 false alarms per movie; 2 finds weaker events and more noise)")
+                   help="deprecated, prefer --false-alarms: divides the threshold z* set by "
+                        "--false-alarms (default 1)")
     p.add_argument("--force", action="store_true", help="scan again even if a cached scan exists")
     p.set_defaults(func=run)
 
@@ -84,7 +87,7 @@ def run(args: argparse.Namespace) -> int:
     from reviewer.progress import Progress
     from reviewer.store.table import write_csv
 
-    settings = DetectSettings(sensitivity=args.sensitivity)
+    settings = DetectSettings(sensitivity=args.sensitivity, false_alarms=args.false_alarms)
     movie = open_checked(args)
     try:
         cache = _cache_folder(movie.fingerprint)
@@ -103,7 +106,7 @@ def run(args: argparse.Namespace) -> int:
             cancel = threading.Event()
             try:
                 features, meta = compute_features(movie, settings, progress=bar.update,
-                                                  cancel=cancel)
+                                                  cancel=cancel, workdir=folder)
             except KeyboardInterrupt:
                 bar.close()
                 print("reviewer: scan interrupted; nothing was written", file=sys.stderr)
@@ -127,6 +130,8 @@ def run(args: argparse.Namespace) -> int:
             write_csv(candidate_rows(candidates), f)
     finally:
         movie.close()
+    for note in meta.get("notices", []):
+        print(f"reviewer: {args.movie}: {note}", file=sys.stderr)
     counts = candidates["kind"].value_counts()
     summary = ", ".join(f"{int(counts.get(k, 0))} {k}" for k in ("step", "transient", "global"))
     print(f"{how}; {len(candidates)} candidates ({summary})")

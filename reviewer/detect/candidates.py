@@ -9,7 +9,8 @@ import pandas as pd
 from reviewer.detect.settings import DetectSettings
 from reviewer.detect.statistics import raw_level, threshold_z
 
-CANDIDATE_COLUMNS = ("frame", "frame_end", "time_s", "kind", "score", "x", "y")
+# cause: for global candidates, what disturbed the whole field (CAUSES); empty for local ones
+CANDIDATE_COLUMNS = ("frame", "frame_end", "time_s", "kind", "score", "x", "y", "cause")
 PULSE_NMS = 8  # frames: pulse peaks closer than this are one event
 PAIR_NEAR = 0.75  # appear/leave pairs: at most this share of the 4-tile "same place" distance apart
 ECHO_SHARE = 0.8  # a kept event explains a nearby peak when its own value there is ≥ this share
@@ -37,22 +38,43 @@ def _peaks(value: np.ndarray, mask: np.ndarray, radius: int) -> list[int]:
     return sorted(out)
 
 
-def global_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float) -> list[dict]:
-    """Blanked frames, jumps of the mean level and changes over a large share of the field."""
+CAUSES = ("stage", "blank", "beam", "unknown")  # a global event's cause, strongest first
+
+
+def global_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float,
+                  z_level: float | None = None) -> list[dict]:
+    """Blanked frames, jumps of the mean level (beam current), whole-field shifts (stage jumps)
+    and changes over a large share of the field, each with its cause. A level jump at a frame
+    where the scene holds a significant local change but few tiles changed is that local change
+    moving the mean, not a beam change: it is left to the local events."""
     n = len(f["score"])
     w0 = s.windows[0]
     events: list[dict] = []
     for a, b in _runs(f["blank"].astype(bool)):
         events.append(dict(frame=int(a), frame_end=int(b), score=float(max(z_thr, 2 * z_thr)),
-                           what="blank"))
+                           what="blank", cause="blank"))
+    score, frac = f["score"], f["frac"]
     gz, gstep = np.abs(f["gz"]), np.abs(f["gstep"])
-    for t in _peaks(gz, (gz > z_thr) & (gstep > s.global_level), (1 + s.outer) * w0):
-        events.append(dict(frame=int(t), frame_end=int(t), score=float(gz[t]), what="level"))
-    frac = f["frac"]
-    wide = (frac >= s.global_fraction) & (f["score"] > z_thr)
-    for t in _peaks(frac + 1e-3 * f["score"], wide, 2 * max(s.windows)):
-        events.append(dict(frame=int(t), frame_end=int(t), score=float(f["score"][t]),
-                           what="field"))
+    shift = f["shift"] if "shift" in f else np.zeros(n, np.int16)
+    reach = max(s.windows)
+    z_level = z_thr if z_level is None else z_level
+    for t in _peaks(gz, (gz > z_level) & (gstep > s.global_level), (1 + s.outer) * w0):
+        # a local change starts at this frame (a located, significant frame whose onset is t ± 1)
+        # while few tiles changed: that change moved the mean
+        k = np.arange(max(t - reach, 0), min(t + reach + 1, n))
+        starts = (score[k] > z_thr) & np.isfinite(f["x"][k]) & (np.abs(k + shift[k] - t) <= 1)
+        spread = np.any(frac[max(t - s.separation, 0): t + s.separation + 1] >= s.global_fraction)
+        if spread or not starts.any():
+            events.append(dict(frame=int(t), frame_end=int(t), score=float(gz[t]), what="level",
+                               cause="beam"))
+    jump = f["jump"] if "jump" in f else np.zeros(n, np.float32)
+    for t in _peaks(jump, jump >= s.jump_px, 2 * max(s.windows)):
+        events.append(dict(frame=int(t), frame_end=int(t), score=float(max(score[t], z_thr)),
+                           what="field", cause="stage"))
+    wide = (frac >= s.global_fraction) & (score > z_thr)
+    for t in _peaks(frac + 1e-3 * score, wide, 2 * max(s.windows)):
+        events.append(dict(frame=int(t), frame_end=int(t), score=float(score[t]),
+                           what="field", cause="unknown"))
     events.sort(key=lambda e: e["frame"])
     merged: list[dict] = []
     for e in events:  # one event per disturbance: merge overlapping or adjacent spans
@@ -60,6 +82,9 @@ def global_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float) -> 
             m = merged[-1]
             m["frame_end"] = max(m["frame_end"], e["frame_end"])
             m["score"] = max(m["score"], e["score"])
+            if e["what"] == "field":
+                m["what"] = "field"
+            m["cause"] = min(m["cause"], e["cause"], key=CAUSES.index)
         else:
             merged.append(dict(e))
     return [e for e in merged if 0 <= e["frame"] < n]
@@ -80,6 +105,17 @@ def _order(f: dict[str, np.ndarray], raw_thr: float, ok: np.ndarray) -> list[tup
         idx = np.flatnonzero(peak)
         out.extend((k, int(t)) for t in idx[np.argsort(-pw[idx], kind="stable")])
     return out
+
+
+def _one_per_change(events: list[dict], near: float) -> list[dict]:
+    """Peaks of different windows that place one change on the same onset (±1 frame), at the same
+    place and with the same sign, are one event: the strongest is kept."""
+    out: list[dict] = []
+    for e in sorted(events, key=lambda e: -e["score"]):
+        if not any(abs(e["frame"] - o["frame"]) <= 1 and e["sign"] == o["sign"]
+                   and np.hypot(e["x"] - o["x"], e["y"] - o["y"]) <= near for o in out):
+            out.append(e)
+    return sorted(out, key=lambda e: e["frame"])
 
 
 def local_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float,
@@ -127,7 +163,7 @@ def local_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float,
     onset = {t: min(max(t + int(shift[t]), 0), n - 1) for t in kept}
     events = [dict(frame=onset[t], frame_end=None, score=float(score[t]), x=float(x[t]),
                    y=float(y[t]), sign=int(sign[t]), kind="step", at=t) for t in kept]
-    events.sort(key=lambda e: e["frame"])
+    events = _one_per_change(events, near)
     used: set[int] = set()
     for i, e in enumerate(events):  # something appears and later leaves the same place
         if i in used:
@@ -166,12 +202,27 @@ def pulse_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float,
     out: list[dict] = []
     for t in _peaks(pz, ok, PULSE_NMS):
         end = t + max(int(dur[t]), 1) - 1
-        if any(t - s.separation <= e["frame"] <= end + s.separation  # found at its onset
-               and np.hypot(e["x"] - px[t], e["y"] - py[t]) <= near for e in found):
-            continue
-        out.append(dict(frame=int(t), frame_end=int(end), score=float(pz[t]), x=float(px[t]),
-                        y=float(py[t]), kind="transient"))
+        here = [e for e in found if t - s.separation <= e["frame"] <= end + s.separation + 1
+                and np.hypot(e["x"] - px[t], e["y"] - py[t]) <= near]
+        if any(e["kind"] == "transient" for e in here):
+            continue  # found as an appear-and-leave pair already
+        for e in here:  # a step at the pulse's entry or exit is that pulse's edge: one transient
+            e["kind"] = "echo"
+        out.append(dict(frame=int(t), frame_end=int(end), x=float(px[t]), y=float(py[t]),
+                        score=max([float(pz[t])] + [e["score"] for e in here]), kind="transient"))
     return out
+
+
+FA_GAIN = 1.0  # exceedance budget per expected false alarm (calibrated: bench_false_alarms.py)
+LEVEL_SHARE = 0.25  # share of that budget for beam-level jumps (a third test beside step and pulse)
+
+
+def threshold_for(s: DetectSettings, n: int, share: float = 1.0) -> float:
+    """The calibrated-z threshold for s.false_alarms expected false alarms over n frames (times
+    `share` for a statistic given part of the budget). Measured on event-free movies the step,
+    pulse and level tests together stay within a factor of 2 of s.false_alarms (overlapping
+    windows make neighbouring exceedances one candidate, which offsets having three tests)."""
+    return threshold_z(s.false_alarms * FA_GAIN * share, n) / s.sensitivity
 
 
 def propose(features: dict[str, np.ndarray], settings: DetectSettings | None = None,
@@ -180,8 +231,8 @@ def propose(features: dict[str, np.ndarray], settings: DetectSettings | None = N
     s = settings or DetectSettings()
     f = features
     n = len(f["score"])
-    z_thr = threshold_z(s.alpha, n) / s.sensitivity
-    glob = global_events(f, s, z_thr)
+    z_thr = threshold_for(s, n)
+    glob = global_events(f, s, z_thr, threshold_for(s, n, LEVEL_SHARE))
     blocked = np.zeros((n, len(s.windows)), bool)  # per window length
     for g in glob:  # a disturbance of the whole field is never reported as growth
         # blanked frames are held and level jumps normalised away before scoring: only the
@@ -192,10 +243,13 @@ def propose(features: dict[str, np.ndarray], settings: DetectSettings | None = N
             lo, hi = g["frame"] - reach, g["frame_end"] + reach
             blocked[max(lo, 0): min(hi + 1, n), k] = True
     rows = [dict(frame=g["frame"], frame_end=g["frame_end"], kind="global", score=g["score"],
-                 x=np.nan, y=np.nan) for g in glob]
+                 x=np.nan, y=np.nan, cause=g["cause"]) for g in glob]
     local = local_events(f, s, z_thr, blocked)
-    for e in local + pulse_events(f, s, z_thr, blocked, local):
-        rows.append({k: e[k] for k in ("frame", "frame_end", "kind", "score", "x", "y")})
+    pulses = pulse_events(f, s, z_thr, blocked, local)
+    for e in local + pulses:
+        if e["kind"] != "echo":
+            rows.append({k: e[k] for k in ("frame", "frame_end", "kind", "score", "x", "y")}
+                        | {"cause": ""})
     df = pd.DataFrame(rows, columns=[c for c in CANDIDATE_COLUMNS if c != "time_s"])
     df = df.sort_values("frame", kind="stable").reset_index(drop=True)
     df["frame"] = df["frame"].astype(np.int64)

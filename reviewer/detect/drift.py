@@ -10,6 +10,9 @@ from __future__ import annotations
 
 import numpy as np
 
+MIN_INNER = 16  # grid cells that must stay inside both images to judge a shift
+MIN_INNER_SHARE = 0.4  # and at least this share of the field
+
 
 def bin_image(img: np.ndarray, factor: int) -> np.ndarray:
     """Sum factor×factor blocks (edges that do not fill a block are dropped); float32 out."""
@@ -58,3 +61,25 @@ def phase_shift(ref: np.ndarray, mov: np.ndarray, upsample: int = 20,
         iy, ix = np.unravel_index(int(np.argmax(fine)), fine.shape)
         peak = peak + (np.array([iy, ix]) - size // 2) / upsample
     return float(peak[0]), float(peak[1]), confidence
+
+
+def explained_shift(before: np.ndarray, after: np.ndarray,
+                    upsample: int = 10) -> tuple[float, float]:
+    """Whole-field shift (in grid units) from `before` to `after` and the share of their
+    difference's energy that the shift explains: 1 − E|after − shifted before|² / E|after −
+    before|², over the part of the field that stays inside both (a stage jump is explained
+    almost wholly, a local change hardly at all, whatever shift the correlation reports)."""
+    dy, dx, _ = phase_shift(before, after, upsample=upsample)
+    a = np.asarray(before, dtype=np.float64)
+    b = np.asarray(after, dtype=np.float64)
+    ky = np.fft.fftfreq(a.shape[0])[:, None]
+    kx = np.fft.fftfreq(a.shape[1])[None, :]
+    moved = np.fft.ifft2(np.fft.fft2(a) * np.exp(-2j * np.pi * (ky * dy + kx * dx))).real
+    my, mx = int(np.ceil(abs(dy))), int(np.ceil(abs(dx)))  # the part the shift wrapped round
+    inner_size = max(a.shape[0] - 2 * my, 0) * max(a.shape[1] - 2 * mx, 0)
+    if inner_size < max(MIN_INNER, MIN_INNER_SHARE * a.size):
+        return float(np.hypot(dy, dx)), 0.0  # too little left to judge: not a whole-field shift
+    inner = (slice(my, a.shape[0] - my), slice(mx, a.shape[1] - mx))
+    e0 = float(np.mean((b - a)[inner] ** 2))
+    e1 = float(np.mean((b - moved)[inner] ** 2))
+    return float(np.hypot(dy, dx)), (1.0 - e1 / e0) if e0 > 0 else 0.0

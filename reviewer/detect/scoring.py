@@ -15,6 +15,8 @@ from reviewer.detect.statistics import effective_tests, step_weight
 
 DECIMATE_MIN_W = 8  # windows this long are evaluated every 2nd frame (their peaks are ≥ w wide)
 TREND_SPAN = 256  # frames over which a tile's trend is taken as constant
+GAIN_TILES = 8192  # tiles sampled for the shot-noise gain
+HELD_SHARE = 0.1  # more exact zeros than this in a scale sample: held frames, left out
 
 
 @dataclass
@@ -37,8 +39,9 @@ def noise_gain(xn: np.ndarray) -> float | None:
     mu = head.mean(axis=0)
     if len(head) < 2 or not np.all(mu > 0):
         return None
-    var = (1.4826 * _col_median(np.abs(np.diff(head, axis=0)))) ** 2 / 2.0
-    return float(np.median(var / mu))
+    step = max(1, head.shape[1] // GAIN_TILES)  # a median over tiles: a spread sample will do
+    var = (1.4826 * _col_median(np.abs(np.diff(head[:, ::step], axis=0)))) ** 2 / 2.0
+    return float(np.median(var / mu[::step]))
 
 
 def noise_sd(xn: np.ndarray, gain: float | None = None) -> np.ndarray:
@@ -164,7 +167,10 @@ def _maps(xn, lo, hi, windows, outer, inv_sd, robust=True, ws: Scratch | None = 
                                     else 1.0 / step_weight(w, outer)[1])
             if robust and t.size > 100:  # robust scale of the z values, from a subsample
                 sub = np.abs(t[:: max(1, (j1 - j0) // 32)] * gain).ravel()
-                scale = 1.4826 * float(np.partition(sub, sub.size // 2)[sub.size // 2])
+                if np.count_nonzero(sub == 0) > HELD_SHARE * sub.size:
+                    sub = sub[sub > 0]  # many exact zeros: held (blanked) frames both sides
+                scale = 1.4826 * float(np.partition(sub, sub.size // 2)[sub.size // 2]) \
+                    if sub.size > 100 else 0.0
                 if scale > 0:
                     gain = gain * np.float32(1.0 / scale)
             t *= gain
@@ -193,9 +199,12 @@ def _maxima(xn, lo, hi, windows, outer) -> np.ndarray:
 
 def score_chunk(xn: np.ndarray, lo: int, hi: int, windows: tuple[int, ...], tile: int,
                 outer: int = 0, inv_sd: np.ndarray | None = None,
-                scratch: Scratch | None = None) -> ChunkScores:
+                scratch: Scratch | None = None, k_eff: float | None = None,
+                own_rows: int | None = None) -> ChunkScores:
     """Scores for buffer rows lo..hi-1 of xn (L, gy, gx), which must hold (1 + outer)·max(w)
-    rows of context on each side where the movie has them."""
+    rows of context on each side where the movie has them. `frac` counts the first `own_rows`
+    tile rows only (a band of a larger grid: its overlap with the next band is counted there);
+    it is returned as a count then, not a share."""
     m = hi - lo
     per_window = np.zeros((m, len(windows)), np.float32)
     maps = []
@@ -205,9 +214,14 @@ def score_chunk(xn: np.ndarray, lo: int, hi: int, windows: tuple[int, ...], tile
     ws = scratch or Scratch()
     for k, z, step in _maps(xn, lo, hi, windows, outer, inv_sd, ws=ws):
         if k == 0:
-            big = np.abs(z.reshape(len(z), -1), out=ws.get("abs", len(z), z[0].size)) > 3.0
+            # share of tiles that changed, around the field's typical change (a local change
+            # moves every other tile a little through the beam normalisation: not spread)
+            own = z[:, : own_rows or z.shape[1]].reshape(len(z), -1)
+            sub = own[:, :: max(1, own.shape[1] // 256)]
+            centre = np.partition(sub, sub.shape[1] // 2, axis=1)[:, sub.shape[1] // 2: sub.shape[1] // 2 + 1]
+            big = np.abs(np.subtract(own, centre, out=ws.get("abs", len(z), own.shape[1]))) > 3.0
             frac = np.count_nonzero(big, axis=1).astype(np.float32)
-            frac = np.repeat(frac / np.float32(z[0].size), step)[:m]
+            frac = np.repeat(frac if own_rows else frac / np.float32(own.shape[1]), step)[:m]
         per_window[:, k] = _expand(pooled_absmax(z, ws), step, m)
         maps.append((z, step))
     best_window = np.argmax(per_window, axis=1).astype(np.int8)
@@ -216,20 +230,90 @@ def score_chunk(xn: np.ndarray, lo: int, hi: int, windows: tuple[int, ...], tile
     shift = np.zeros(m, np.int16)
     x = np.full(m, np.nan, np.float32)
     y = np.full(m, np.nan, np.float32)
-    k_eff = null_tests(xn.shape[1], xn.shape[2], tuple(windows), outer)
+    if k_eff is None:
+        k_eff = null_tests(xn.shape[1], xn.shape[2], tuple(windows), outer)
     sign, x, y, shift = locate(xn, lo, per_window, best_window, maps, windows, tile, k_eff)
     smax = per_window.max(axis=1)
     return ChunkScores(smax, per_window, best_window, sign, x, y, frac, k_eff, shift)
 
 
-__all__ = ["SHAPES", "ChunkScores", "noise_gain", "noise_sd", "onset_shift", "score_chunk"]
+BAND_CELLS = 1 << 20  # tile values per band and window array (bounds the work buffers)
+OVERLAP = max(h for h, _ in SHAPES) - 1  # tile rows shared by neighbouring bands
+
+
+def score_bands(xn: np.ndarray, lo: int, hi: int, windows: tuple[int, ...], tile: int,
+                outer: int = 0, inv_sd: np.ndarray | None = None,
+                scratch: Scratch | None = None, cells: int | None = None) -> ChunkScores:
+    """score_chunk in bands of tile rows for large grids, so the work buffers stay near `cells`
+    values whatever the frame size. Bands overlap by OVERLAP rows, so every pooled box lies wholly
+    in one band; per frame the per-window maxima are the bands' maxima and the location comes
+    from the band with the strongest located score."""
+    n, gy, gx = xn.shape
+    if inv_sd is None:
+        inv_sd = 1.0 / noise_sd(xn)
+    span = (hi - lo) + 2 * (1 + outer) * max(windows)
+    rows = max(2 * OVERLAP, (cells or BAND_CELLS) // max(span * gx, 1))
+    if rows + OVERLAP >= gy:
+        return score_chunk(xn, lo, hi, windows, tile, outer, inv_sd, scratch)
+    k_eff = null_tests(gy, gx, tuple(windows), outer)
+    inv = np.asarray(inv_sd, np.float32).reshape(gy, gx)
+    out: ChunkScores | None = None
+    best = None
+    count = np.zeros(hi - lo, np.float32)
+    for r0 in range(0, gy, rows):
+        r1 = min(gy, r0 + rows + OVERLAP)
+        cs = score_chunk(xn[:, r0:r1], lo, hi, windows, tile, outer, inv[r0:r1], scratch,
+                         k_eff=k_eff, own_rows=min(rows, r1 - r0))
+        count += cs.frac
+        cs.y += np.float32(r0 * tile)
+        located = np.where(np.isfinite(cs.x), cs.smax, -1.0)
+        if out is None:
+            out, best = cs, located
+            continue
+        take = located > best
+        for name in ("sign", "x", "y", "shift", "best_window"):
+            getattr(out, name)[take] = getattr(cs, name)[take]
+        best = np.maximum(best, located)
+        np.maximum(out.per_window, cs.per_window, out=out.per_window)
+    assert out is not None
+    unlocated = best < 0
+    out.best_window[unlocated] = np.argmax(out.per_window[unlocated], axis=1)
+    out.smax = out.per_window.max(axis=1)
+    out.frac = count / np.float32(gy * gx)
+    return out
+
+
+__all__ = ["SHAPES", "ChunkScores", "noise_gain", "noise_sd", "onset_shift", "score_bands",
+           "score_chunk"]
+
+
+CALIBRATION_GRID = 32  # null calibrations run on at most this many tiles a side (fixed cost)
+# _simulated_tests for the default windows on the full calibration grid, computed once (fixed seed;
+# tests/test_detect_sizes.py checks it against the simulation), so camera-size scans skip it
+KNOWN_TESTS = {(32, 32, (3, 10, 24), 0): 18647.647013948004}
+
+
+def box_count(gy: int, gx: int) -> int:
+    """Number of pooled boxes (every shape of SHAPES at every position) on a gy × gx tile grid."""
+    return sum(max(gy - h + 1, 0) * max(gx - w + 1, 0) for h, w in SHAPES)
+
+
+def null_tests(gy: int, gx: int, windows: tuple[int, ...], outer: int) -> float:
+    """Effective number of independent tests per frame for this grid and these windows: measured
+    on simulated noise on a grid of at most CALIBRATION_GRID tiles a side and scaled by the number
+    of pooled boxes (the maximum of many nearly independent boxes grows with their number; the
+    box count carries the edges), so its cost does not grow with the frame size."""
+    cy, cx = min(gy, CALIBRATION_GRID), min(gx, CALIBRATION_GRID)
+    key = (cy, cx, tuple(windows), outer)
+    k = KNOWN_TESTS.get(key) or _simulated_tests(*key)
+    return k * box_count(gy, gx) / max(box_count(cy, cx), 1)
 
 
 @lru_cache(maxsize=16)
-def null_tests(gy: int, gx: int, windows: tuple[int, ...], outer: int) -> float:
-    """Effective number of independent tests per frame for this grid and these windows, measured
-    once by running the same scoring on simulated white Gaussian noise (fixed seed). Measured on
-    noise rather than on the movie so busy movies (events everywhere) do not bias the threshold."""
+def _simulated_tests(gy: int, gx: int, windows: tuple[int, ...], outer: int) -> float:
+    """Effective number of independent tests per frame on a (small) gy × gx grid, measured once by
+    running the same scoring on simulated white Gaussian noise (fixed seed). Measured on noise
+    rather than on the movie so busy movies (events everywhere) do not bias the threshold."""
     rng = np.random.default_rng(12345)
     ctx = (1 + outer) * max(windows)
     n = max(1024, 12 * ctx)

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 from dataclasses import asdict, dataclass, fields
 
+import numpy as np
+
 from reviewer.errors import BadInput
 
 
@@ -12,14 +14,16 @@ class DetectSettings:
     """Knobs of the scan (`SCAN_KEYS`: change them and the movie must be read again) and of
     `propose` (the rest: re-detection from saved features, no re-read).
 
-    Threshold: a frame is a candidate when its calibrated score z exceeds
-    ``z* / sensitivity`` with ``z* = Φ⁻¹(1 − alpha / 2N)`` and N the number of frames, so the whole
-    movie's expected number of false alarms is ``alpha`` at sensitivity 1. Sensitivity 2 halves the
-    threshold (more recall, more false alarms); 0.5 doubles it.
+    Threshold: `false_alarms` is the expected number of false alarms over the whole movie (the
+    one knob; `reviewer scan --false-alarms N`). A frame is a candidate when its calibrated score
+    z exceeds ``z* = Φ⁻¹(1 − a / 2N)``, N the number of frames and a = false_alarms × FA_GAIN (the
+    measured ratio of candidates to exceedances, see candidates.threshold_for and
+    benchmarks/bench_false_alarms.py). `sensitivity` (deprecated, kept for `--sensitivity`)
+    divides z* on top.
     """
 
     sensitivity: float = 1.0
-    alpha: float = 0.05          # expected false alarms over the whole movie at sensitivity 1
+    false_alarms: float = 0.05   # expected false alarms over the whole movie
     tile: int = 8                # tile side in pixels (frames are reduced to tile sums first)
     windows: tuple[int, ...] = (3, 10, 24)  # before/after window lengths in frames
     outer: int = 0               # trend windows outer × w frames long (0: plain after − before)
@@ -38,8 +42,8 @@ class DetectSettings:
     def __post_init__(self) -> None:
         if not self.sensitivity > 0:
             raise BadInput(f"sensitivity: must be a positive number, got {self.sensitivity}")
-        if not self.alpha > 0:
-            raise BadInput(f"alpha: must be positive, got {self.alpha}")
+        if not (self.false_alarms > 0 and np.isfinite(self.false_alarms)):
+            raise BadInput(f"false alarms: must be a positive number, got {self.false_alarms}")
         if self.tile < 2 or any(w < 1 for w in self.windows):
             raise BadInput("detector settings: tile must be >= 2 and windows >= 1")
 
@@ -51,6 +55,9 @@ class DetectSettings:
     @classmethod
     def from_dict(cls, d: dict) -> DetectSettings:
         known = {f.name for f in fields(cls)}
+        d = dict(d)
+        if "alpha" in d and "false_alarms" not in d:  # settings saved before the knob's rename
+            d["false_alarms"] = d.pop("alpha")
         kw = {k: v for k, v in d.items() if k in known}
         if "windows" in kw:
             kw["windows"] = tuple(int(w) for w in kw["windows"])

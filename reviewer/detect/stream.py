@@ -3,20 +3,24 @@ frames a chunk at a time with bounded memory, and keep compact per-frame feature
 
 from __future__ import annotations
 
+import shutil
 import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
-from reviewer.detect.drift import phase_shift
+from reviewer.detect.drift import explained_shift, phase_shift
 from reviewer.detect.pulse import null_pulse_tests, pulse_chunk
+from reviewer.detect.reading import read_ahead
 from reviewer.detect.reduce import Scratch, bin_block
-from reviewer.detect.scoring import noise_gain, noise_sd, score_chunk
+from reviewer.detect.scoring import noise_gain, noise_sd, score_bands
 from reviewer.detect.settings import DetectSettings
 from reviewer.detect.statistics import (
     calibrate_max,
+    raw_level,
     robust_sigma,
     step_statistic,
     step_weight,
@@ -24,6 +28,11 @@ from reviewer.detect.statistics import (
 from reviewer.errors import BadInput
 
 DRIFT_EVERY = 2048  # frames per drift estimate
+NEW_FEATURES = "features.new"  # subfolder of a scan folder where a running scan writes features
+JUMP_Z = 4.0  # frames whose calibrated score peaks above this get a whole-field shift estimate
+JUMP_CHECKS = 8  # at most this many per chunk, strongest first
+JUMP_EXPLAINED = 0.5  # the shift must explain this share of the change to count as a stage jump
+HOLD = 24  # a blanked frame is replaced by the mean of this many frames before it
 
 
 class ScanCancelled(Exception):
@@ -33,7 +42,7 @@ class ScanCancelled(Exception):
 @dataclass
 class ScanResult:
     features: dict[str, np.ndarray]   # per-frame arrays, "score" first
-    candidates: pd.DataFrame           # frame, frame_end, time_s, kind, score, x, y (by frame)
+    candidates: pd.DataFrame           # CANDIDATE_COLUMNS (by frame)
     settings: dict                     # DetectSettings.to_dict()
     meta: dict = field(default_factory=dict)  # frames, shape, tile, k_eff, seconds, ...
 
@@ -50,14 +59,20 @@ class _Scanner:
     """Carried state between blocks: a preallocated buffer of normalised tile sums (the frames being
     scored plus `ctx` frames of context each side), the beam-level reference, the noise gain."""
 
-    def __init__(self, n: int, shape: tuple[int, int], s: DetectSettings, path: str) -> None:
+    def __init__(self, n: int, shape: tuple[int, int], s: DetectSettings, path: str,
+                 block_rows: int = 64, workdir: Path | None = None) -> None:
         self.s = s
+        self.workdir = workdir
         self.n = n
         self.tile, self.gy, self.gx = _geometry(shape, s.tile, path)
         # context rows kept each side of the frames being scored: the windows' reach, and more
-        # than the drift check's 2·w (scoring.trending)
-        self.ctx = max(1 + s.outer, 3) * max(s.windows)
-        cap = s.chunk + 3 * self.ctx + s.read_block
+        # than the drift check's 2·w (locate.trending); just that for camera-size grids, where
+        # every row of context is megabytes
+        big = self.gy * self.gx > LARGE_GRID
+        self.ctx = max(1 + s.outer, 2 if big else 3) * max(s.windows) + (2 if big else 0)
+        # frames scored at a time: fewer for large grids, so the buffer stays bounded
+        self.chunk = min(s.chunk, max(64, CHUNK_CELLS // (self.gy * self.gx)))
+        cap = self.chunk + 2 * self.ctx + min(s.read_block, block_rows)
         self.buf = np.empty((cap, self.gy, self.gx), np.float32)
         self.fill = 0          # rows of buf in use
         self.base = 0          # absolute index of buffer row 0
@@ -73,52 +88,147 @@ class _Scanner:
         self.drift = np.zeros(2)
         self.mean_sum = np.zeros((self.gy, self.gx))
         self.mean_rows = 0
+        self.normed = 0        # absolute index of the first row not yet normalised
+        self.head_blank: list[int] = []  # blanked frames before the first good one
+        self.seen_good = False
+        self.nonfinite = 0     # non-finite pixels masked
+        self.nonfinite_frames = 0
+        self.last_tiles: np.ndarray | None = None
         f32 = np.float32
-        self.f = {name: np.zeros(n, f32) for name in ("smax", "x", "y", "frac", "level", "jump",
-                                                      "drift_y", "drift_x")}
+        self.f = {name: self._alloc(name, n, f32) for name in (
+            "smax", "x", "y", "frac", "level", "jump", "drift_y", "drift_x")}
         self.f["x"][:] = np.nan
         self.f["y"][:] = np.nan
-        self.f["zw"] = np.zeros((n, len(s.windows)), f32)
-        self.f["best_window"] = np.zeros(n, np.int8)
-        self.f["sign"] = np.zeros(n, np.int8)
-        self.f["shift"] = np.zeros(n, np.int16)  # onset − frame where located
-        self.f["blank"] = np.zeros(n, np.uint8)
+        self.f["zw"] = self._alloc("zw", (n, len(s.windows)), f32)
+        self.f["best_window"] = self._alloc("best_window", n, np.int8)
+        self.f["sign"] = self._alloc("sign", n, np.int8)
+        self.f["shift"] = self._alloc("shift", n, np.int16)  # onset − frame where located
+        self.f["blank"] = self._alloc("blank", n, np.uint8)
         for name in ("pmax", "px", "py"):  # short-pulse statistic (pulse.py), best tile
-            self.f[name] = np.zeros(n, f32)
-        self.f["pdur"] = np.zeros(n, np.int8)
+            self.f[name] = self._alloc(name, n, f32)
+        self.f["pdur"] = self._alloc("pdur", n, np.int8)
 
-    def feed(self, start: int, block: np.ndarray) -> None:
-        k = len(block)
+    def _alloc(self, name: str, shape, dtype) -> np.ndarray:
+        """A zeroed per-frame array: in RAM, or a memory-mapped .npy file in workdir (the features
+        go to disk as they are made, so memory does not grow with the number of frames)."""
+        if self.workdir is None:
+            return np.zeros(shape, dtype)
+        return np.lib.format.open_memmap(self.workdir / f"{name}.npy", mode="w+", dtype=dtype,
+                                         shape=shape if isinstance(shape, tuple) else (shape,))
+
+    def reduce(self, block: np.ndarray) -> np.ndarray:
+        """Raw frames -> tile sums (non-finite pixels masked); the one pass over every pixel."""
+        if block.dtype.kind in "fc" and not np.isfinite(block).all():
+            return self._masked(block)
+        return bin_block(block, self.tile, self.gy, self.gx)
+
+    def feed(self, start: int, tiles: np.ndarray) -> None:
+        """Take the next frames' tile sums (reduce()); scores a chunk when enough have come."""
+        k = len(tiles)
         if self.fill + k > len(self.buf):
             self.buf = np.concatenate([self.buf, np.empty_like(self.buf[: k])])
         xn = self.buf[self.fill: self.fill + k]
-        xn[...] = bin_block(block, self.tile, self.gy, self.gx)
-        # beam level: total over the field against the first frames' (a local change of a few
-        # hundred px moves the total little; a beam change moves every tile)
-        total = xn.reshape(k, -1).sum(axis=1, dtype=np.float64)
-        if not self.ref_total:
-            self.ref_total = float(np.median(total)) or 1.0
-            lv = total / self.ref_total
-            self._remember(np.sort(lv)[k // 4: 3 * k // 4 + 1])
-            self.ref0 = self._recent_median() or 1.0
-        level = total / self.ref_total
-        ref = self._recent_median() or self.ref0
-        good = (np.abs(level / ref - 1.0) <= self.s.blank_level) & (level != 0)
-        if good.all():
-            xn *= (self.ref0 / level).astype(np.float32)[:, None, None]
-        else:
-            scale = np.where(good, self.ref0 / np.where(level != 0, level, 1.0), 1.0)
-            xn *= scale.astype(np.float32)[:, None, None]
-            for i in np.flatnonzero(~good):  # blanked frames: hold the last good frame
-                self.f["blank"][start + i] = 1
-                if self.fill + i > 0:
-                    xn[i] = self.buf[self.fill + i - 1]
+        xn[...] = tiles
+        # beam level: total over the field (a local change of a few hundred px moves the total
+        # little; a beam change moves every tile); kept raw until the rows are normalised
+        self.f["level"][start: start + k] = xn.reshape(k, -1).sum(axis=1, dtype=np.float64)
         self.fill += k
-        self._remember(level[good][::4])
-        self.f["level"][start: start + k] = level / self.ref0
         end = self.base + self.fill
-        if end - self.scored >= self.s.chunk + self.ctx:
+        if end - self.scored >= self.chunk + self.ctx:
             self._score(end - self.ctx)
+
+    def _masked(self, block: np.ndarray) -> np.ndarray:
+        """Tile sums of frames with non-finite pixels: those pixels are left out and each tile's
+        sum scaled up by the share of its pixels that are finite; a tile with none holds its last
+        finite value (or the frame's median tile). Frames with no finite pixel stay NaN (blanked)."""
+        fin = np.isfinite(block)
+        self.nonfinite += int(fin.size - np.count_nonzero(fin))
+        self.nonfinite_frames += int(np.count_nonzero(~fin.reshape(len(block), -1).all(axis=1)))
+        t = self.tile
+        sums = bin_block(np.where(fin, block, 0).astype(np.float32), t, self.gy, self.gx)
+        cnt = bin_block(fin.astype(np.uint8), t, self.gy, self.gx)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            sums = np.where(cnt > 0, sums * np.float32(t * t) / cnt, np.nan).astype(np.float32)
+        for row in sums:
+            hole = np.isnan(row)
+            if not hole.any():
+                self.last_tiles = row.copy()
+            elif hole.all():
+                row[:] = 0  # no finite pixel: a level of 0 marks the frame blanked
+            else:
+                fillv = self.last_tiles if self.last_tiles is not None else None
+                row[hole] = np.nanmedian(row) if fillv is None else fillv[hole]
+                self.last_tiles = row.copy()
+        return sums
+
+    def _elect_reference(self, totals: np.ndarray) -> None:
+        """The beam reference from the first frames: the median total of the frames within
+        blank_level of the bright end (the 90th percentile), so blanked or non-finite frames, even
+        most of the first frames, never set it."""
+        t = totals[np.isfinite(totals) & (totals > 0)]
+        if not len(t):
+            return
+        top = float(np.quantile(t, 0.9))
+        near = t[np.abs(t / top - 1.0) <= self.s.blank_level]
+        self.ref_total = float(np.median(near)) or 1.0
+        lv = near / self.ref_total
+        self._remember(lv)
+        self.ref0 = self._recent_median() or 1.0
+
+    def _normalise(self) -> None:
+        """Scale the rows not yet normalised by the beam level (in order, 64 rows at a time against
+        the recent good frames' level) and hold blanked frames (the mean of the frames before, or
+        of the first good ones for blanked frames at the start)."""
+        while self.normed < self.base + self.fill:
+            a = self.normed
+            b = min(self.base + self.fill, a + 64)
+            if not self.ref_total:
+                self._elect_reference(self.f["level"][: self.base + self.fill].astype(np.float64))
+            total = self.f["level"][a:b].astype(np.float64)
+            xn = self.buf[a - self.base: b - self.base]
+            ref_total = self.ref_total or 1.0
+            level = total / ref_total
+            ref = self._recent_median() or self.ref0 or 1.0
+            with np.errstate(invalid="ignore"):
+                good = np.isfinite(level) & (np.abs(level / ref - 1.0) <= self.s.blank_level) \
+                    & (level != 0) & (self.ref_total > 0)
+            scale = np.where(good, (self.ref0 or 1.0) / np.where(good, level, 1.0), 1.0)
+            xn *= scale.astype(np.float32)[:, None, None]
+            self.f["blank"][a:b] = ~good
+            first = int(np.argmax(good)) if good.any() else len(good)
+            if not self.seen_good:
+                self.head_blank.extend(range(a, a + first))
+                if first < len(good):  # blanked start: hold the mean of the first good frames
+                    hold = xn[first:][good[first:]][:HOLD].mean(axis=0)
+                    self.buf[max(self.head_blank[0] - self.base, 0) if self.head_blank else 0:
+                             a - self.base + first] = hold
+                    self.head_blank = []
+                    self.seen_good = True
+            if self.seen_good:
+                for i in np.flatnonzero(~good[first:]) + first:
+                    # hold the mean of the frames before (one frozen frame would carry a single
+                    # frame's noise through every window over a long blank)
+                    r = a - self.base + i
+                    xn[i] = self.buf[max(r - HOLD, 0): r].mean(axis=0)
+            self._remember(level[good][::4])
+            self.f["level"][a:b] = np.where(np.isfinite(level), level, np.nan) / (self.ref0 or 1.0)
+            self.normed = b
+
+    def _stage_jumps(self, xn: np.ndarray, lo: int, cs) -> None:
+        w0 = self.s.windows[0]
+        sm = cs.smax
+        peak = sm > raw_level(JUMP_Z, cs.k_eff)
+        peak[1:] &= sm[1:] >= sm[:-1]
+        peak[:-1] &= sm[:-1] >= sm[1:]
+        peak |= cs.frac >= 0.5 * self.s.global_fraction
+        idx = np.flatnonzero(peak)
+        for j in idx[np.argsort(-sm[idx], kind="stable")][:JUMP_CHECKS]:
+            r = lo + j
+            if r - w0 < 0 or r + w0 > len(xn):
+                continue
+            shift, explained = explained_shift(xn[r - w0: r].mean(0), xn[r: r + w0].mean(0))
+            if explained >= JUMP_EXPLAINED:
+                self.f["jump"][self.scored + j] = shift * self.tile
 
     def _remember(self, levels: np.ndarray) -> None:
         """Keep the last 64 good frames' levels (a ring) for the blank test's reference."""
@@ -138,13 +248,14 @@ class _Scanner:
             self._score(end)
 
     def _score(self, upto: int) -> None:
+        self._normalise()
         xn = self.buf[: self.fill]
         lo, hi = self.scored - self.base, upto - self.base
-        w0 = self.s.windows[0]
-        if self.gain is None:  # shot-noise gain measured once, on the first frames
-            self.gain = noise_gain(xn)
+        if self.gain is None:  # shot-noise gain measured once, on the first good frames
+            good = np.flatnonzero(self.f["blank"][self.base: self.base + self.fill] == 0)
+            self.gain = noise_gain(xn[good[:257]] if len(good) >= 2 else xn)
         inv_sd = 1.0 / noise_sd(xn, self.gain)  # the means follow the scene
-        cs = score_chunk(xn, lo, hi, self.s.windows, self.tile, self.s.outer, inv_sd,
+        cs = score_bands(xn, lo, hi, self.s.windows, self.tile, self.s.outer, inv_sd,
                          self.scratch)
         sl = slice(self.scored, upto)
         f = self.f
@@ -155,14 +266,9 @@ class _Scanner:
         f["pmax"][sl], f["px"][sl], f["py"][sl], f["pdur"][sl] = ps.pmax, ps.x, ps.y, ps.dur
         if hi - lo >= 32:
             self.k_medians.append(cs.k_eff)
-        # whole-field shift where many tiles changed at once (stage jump test)
-        half = 0.5 * self.s.global_fraction
-        for j in np.flatnonzero(cs.frac >= half)[:64]:
-            r = lo + j
-            if r - w0 < 0 or r + w0 > len(xn):
-                continue
-            dy, dx, _ = phase_shift(xn[r - w0: r].mean(0), xn[r: r + w0].mean(0), upsample=10)
-            f["jump"][self.scored + j] = np.hypot(dy, dx) * self.tile
+        # whole-field shift at the strongest changes and where many tiles changed at once (stage
+        # jump test): kept where the shift explains most of the change
+        self._stage_jumps(xn, lo, cs)
         # slow drift (a feature for the viewer, not used for scoring): shift of the mean image of
         # the last DRIFT_EVERY frames or more against the previous one's
         self.mean_sum += xn[lo:hi].sum(axis=0, dtype=np.float64)
@@ -182,14 +288,24 @@ class _Scanner:
             self.buf[: self.fill - keep] = self.buf[keep: self.fill]
             self.fill -= keep
             self.base += keep
+    def _scalar(self, name: str, value: float) -> np.ndarray:
+        a = np.array(value)
+        if self.workdir is not None:
+            np.save(self.workdir / f"{name}.npy", a)
+        return a
+
     def features(self) -> tuple[dict[str, np.ndarray], dict]:
         f = self.f
         k_eff = float(np.median(self.k_medians)) if self.k_medians else 1.0
-        f["score"] = calibrate_max(f["smax"], k_eff).astype(np.float32)
-        f["k_eff"] = np.array(k_eff)
         k_pulse = null_pulse_tests(self.gy, self.gx)
-        f["pulse"] = calibrate_max(f["pmax"], k_pulse).astype(np.float32)
-        f["k_pulse"] = np.array(k_pulse)
+        f["score"] = self._alloc("score", self.n, np.float32)
+        f["pulse"] = self._alloc("pulse", self.n, np.float32)
+        for a in range(0, self.n, 1 << 20):  # in pieces: float64 temporaries stay small
+            b = min(self.n, a + (1 << 20))
+            f["score"][a:b] = calibrate_max(f["smax"][a:b], k_eff)
+            f["pulse"][a:b] = calibrate_max(f["pmax"][a:b], k_pulse)
+        f["k_eff"] = self._scalar("k_eff", k_eff)
+        f["k_pulse"] = self._scalar("k_pulse", k_pulse)
         w0 = self.s.windows[0]
         lev = np.log(np.clip(np.where(f["blank"] == 1, np.nan, f["level"]), 1e-6, None))
         lev = pd.Series(lev).ffill().bfill().to_numpy() if np.isnan(lev).any() else lev
@@ -197,39 +313,62 @@ class _Scanner:
         t = np.nan_to_num(step_statistic(lev, w0, self.s.outer))
         sd = robust_sigma(np.diff(lev)) / np.sqrt(2.0) if len(lev) > 2 else 0.0
         c, factor = step_weight(w0, self.s.outer)
-        f["gstep"] = (np.exp(t / (1.0 - c)) - 1.0).astype(np.float32)
-        f["gz"] = (t / max(sd * factor, 1e-9)).astype(np.float32)
+        f["gstep"] = self._alloc("gstep", self.n, np.float32)
+        f["gstep"][:] = np.exp(t / (1.0 - c)) - 1.0
+        f["gz"] = self._alloc("gz", self.n, np.float32)
+        f["gz"][:] = t / max(sd * factor, 1e-9)
+        for a in f.values():
+            if isinstance(a, np.memmap):
+                a.flush()
         order = ["score"] + [k for k in f if k != "score"]
         meta = {"frames": self.n, "tile": self.tile, "grid": [self.gy, self.gx], "k_eff": k_eff,
-                "ref_level": self.ref0}
+                "ref_level": self.ref0, "nonfinite_pixels": self.nonfinite, "notices": []}
+        if self.nonfinite:
+            meta["notices"].append(
+                f"{self.nonfinite} non-finite pixels (NaN or infinity) in {self.nonfinite_frames} "
+                "frames were left out of the scan")
         return {k: f[k] for k in order}, meta
 
 
 BLOCK_BYTES = 32 << 20  # at most this much of raw frames per read (memory bound for large frames)
+CHUNK_CELLS = 1 << 22  # tile values scored at a time (frames × tiles), at least 64 frames
+LARGE_GRID = 1 << 15  # tiles per frame above which context rows are kept to the minimum
 
 
 def block_frames(movie, s: DetectSettings) -> int:
     """Frames per read: settings.read_block, fewer when the frames are large (a 2k×2k uint16 frame
     is 8 MiB, so 64 of them decoded at once would be 512 MiB)."""
     frame_bytes = movie.shape[0] * movie.shape[1] * np.dtype(movie.dtype).itemsize
-    return max(4, min(s.read_block, BLOCK_BYTES // max(frame_bytes, 1)))
+    return max(1, min(s.read_block, BLOCK_BYTES // max(frame_bytes, 1)))
 
 
 def compute_features(movie, settings: DetectSettings | None = None,
                      progress: Callable[[int], None] | None = None,
-                     cancel=None) -> tuple[dict[str, np.ndarray], dict]:
-    """Read `movie` once, in order, and return (features, meta)."""
+                     cancel=None, workdir=None) -> tuple[dict[str, np.ndarray], dict]:
+    """Read `movie` once, in order, and return (features, meta). With `workdir` (a scan folder, see
+    cache.save_scan) the per-frame features are memory-mapped .npy files in its NEW_FEATURES
+    subfolder, written as they are made; save_scan then only moves them into place."""
     s = settings or DetectSettings()
     if movie.n_frames < 1:
         raise BadInput(f"{movie.path}: the movie has no frames")
     t0 = time.perf_counter()
-    sc = _Scanner(movie.n_frames, tuple(movie.shape), s, str(movie.path))
-    for start, block in movie.iter_blocks(block_frames(movie, s), reuse=True):
-        if cancel is not None and cancel.is_set():
-            raise ScanCancelled("scan cancelled")
-        sc.feed(start, np.asarray(block))
-        if progress is not None:
-            progress(start + len(block))
+    per = block_frames(movie, s)
+    work = None
+    if workdir is not None:
+        work = Path(workdir) / NEW_FEATURES
+        shutil.rmtree(work, ignore_errors=True)
+        work.mkdir(parents=True)
+    sc = _Scanner(movie.n_frames, tuple(movie.shape), s, str(movie.path), per, work)
+    blocks = read_ahead(movie, per, sc.reduce)
+    try:
+        for start, tiles in blocks:
+            if cancel is not None and cancel.is_set():
+                raise ScanCancelled("scan cancelled")
+            sc.feed(start, tiles)
+            if progress is not None:
+                progress(start + len(tiles))
+    finally:
+        blocks.close()  # the reader thread has stopped when this returns
     sc.finish()
     features, meta = sc.features()
     meta.update(shape=list(movie.shape), seconds=round(time.perf_counter() - t0, 3),
