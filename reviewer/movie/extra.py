@@ -12,7 +12,7 @@ import importlib
 from pathlib import Path
 
 from reviewer.errors import BadInput
-from reviewer.movie.base import Movie, Timing
+from reviewer.movie.base import Movie, Timing, companions, fingerprint_file
 from reviewer.movie.npy import DatasetMovie, frames_layout
 
 H5_SUFFIXES = (".h5", ".hdf5", ".hdf", ".he5")
@@ -96,6 +96,8 @@ def fingerprint_zarr(path: Path) -> str:
         if p.name in (".zarray", ".zgroup", ".zattrs", "zarr.json"):
             st = p.stat()
             h.update(f"{p.relative_to(path)}:{st.st_size}:{st.st_mtime_ns};".encode())
+    for extra in companions(path):
+        h.update(fingerprint_file(extra).encode())
     return h.hexdigest()
 
 

@@ -2,6 +2,10 @@
 
 from __future__ import annotations
 
+import ast
+import math
+import struct
+import warnings
 from pathlib import Path
 
 import numpy as np
@@ -53,28 +57,55 @@ class DatasetMovie(Movie):
             self._closer()
 
 
+# .npy format versions this reader knows (NumPy's format.py, "NEP 1"): header length field size and
+# text encoding. Version 1.0: 2-byte length, latin-1; 2.0: 4-byte length; 3.0: 4-byte, UTF-8.
+_VERSIONS = {(1, 0): ("<H", "latin1"), (2, 0): ("<I", "latin1"), (3, 0): ("<I", "utf8")}
+MAX_HEADER = 1 << 16
+
+
 def _header(path: Path) -> tuple[tuple[int, ...], bool, np.dtype, int]:
+    """(shape, fortran order, dtype, data offset) from the header; BadInput when it is not one."""
     with open(path, "rb") as f:
-        version = np.lib.format.read_magic(f)
-        if version == (1, 0):
-            shape, fortran, dtype = np.lib.format.read_array_header_1_0(f)
-        elif version == (2, 0):
-            shape, fortran, dtype = np.lib.format.read_array_header_2_0(f)
-        else:
-            shape, fortran, dtype = np.lib.format._read_array_header(f, version)  # noqa: SLF001
-        return tuple(shape), bool(fortran), np.dtype(dtype), f.tell()
+        head = f.read(12)
+        if len(head) < 10 or head[:6] != b"\x93NUMPY":
+            raise BadInput(f"{path}: not a NumPy .npy file (no .npy magic bytes)")
+        version = (head[6], head[7])
+        if version not in _VERSIONS:
+            raise BadInput(f"{path}: .npy format version {version[0]}.{version[1]} is not known "
+                           "(known: 1.0, 2.0, 3.0)")
+        fmt, encoding = _VERSIONS[version]
+        start = 8 + struct.calcsize(fmt)
+        (length,) = struct.unpack_from(fmt, head, 8) if len(head) >= start else (-1,)
+        if not 0 < length <= MAX_HEADER:
+            raise BadInput(f"{path}: damaged .npy header (header length {length})")
+        f.seek(start)
+        text = f.read(length)
+    if len(text) < length:
+        raise BadInput(f"{path}: truncated .npy header")
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # e.g. invalid escapes in a damaged header's strings
+            d = ast.literal_eval(text.decode(encoding))
+        shape, fortran, descr = d["shape"], d["fortran_order"], d["descr"]
+        dtype = np.lib.format.descr_to_dtype(descr)
+    except (ValueError, SyntaxError, TypeError, KeyError, UnicodeDecodeError, MemoryError,
+            RecursionError) as exc:
+        raise BadInput(f"{path}: damaged .npy header ({exc.__class__.__name__})") from None
+    if (not isinstance(shape, tuple) or not all(type(v) is int for v in shape)
+            or not isinstance(fortran, bool)):
+        raise BadInput(f"{path}: damaged .npy header (shape {shape!r})")
+    if any(v < 0 for v in shape):
+        raise BadInput(f"{path}: .npy header declares a negative size (shape {shape})")
+    return tuple(shape), fortran, dtype, start + length
 
 
 def open_npy(path: Path, fingerprint: str) -> Movie:
-    try:
-        shape, fortran, dtype, offset = _header(path)
-    except (ValueError, OSError, SyntaxError, TypeError, EOFError) as exc:
-        raise BadInput(f"{path}: not a NumPy .npy file ({str(exc).splitlines()[0][:80]})") from None
-    if dtype.hasobject or dtype.fields is not None:
+    shape, fortran, dtype, offset = _header(path)
+    if dtype.hasobject or dtype.fields is not None or dtype.kind not in "iuf" or dtype.itemsize == 0:
         raise BadInput(f"{path}: .npy holds {dtype} values, not pixel values")
     shape, rgb, notices = frames_layout(shape, path, ".npy array")
     frame_shape = shape[1:]
-    frame_bytes = int(np.prod(frame_shape)) * dtype.itemsize
+    frame_bytes = math.prod(frame_shape) * dtype.itemsize  # Python ints: no overflow
     size = path.stat().st_size
     whole = max(0, (size - offset) // frame_bytes)
     layout = f"NumPy .npy, {shape[0]} frames, memory-mapped"

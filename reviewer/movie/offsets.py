@@ -47,8 +47,8 @@ class OffsetMovie(Movie):
                          layout=layout, timing=timing or Timing(), fingerprint=fingerprint,
                          notices=list(notices or []))
 
-    def _fill(self, buf: np.ndarray, offset: int) -> None:
-        """Read exactly buf.nbytes bytes at offset into buf."""
+    def _fill(self, buf: np.ndarray, offset: int, first: int, count: int = 1) -> None:
+        """Read exactly buf.nbytes bytes at offset into buf (frames first..first+count-1)."""
         if self._fd is None:
             raise ValueError("movie is closed")
         view = memoryview(buf).cast("B")
@@ -61,8 +61,10 @@ class OffsetMovie(Movie):
                     os.lseek(self._fd, offset + done, os.SEEK_SET)
                     got = os.readv(self._fd, [view[done:]])
             if got <= 0:
-                raise BadInput(f"{self.path}: the file ended at byte {offset + done} while reading a "
-                               "frame (was it truncated after opening?)")
+                starts = self.offsets[first:first + count]
+                bad = first + max(0, int(np.searchsorted(starts, offset + done, "right")) - 1)
+                raise BadInput(f"{self.path}: frame {bad} cannot be read: the file ends at byte "
+                               f"{offset + done} (was it truncated after opening?)")
             done += got
 
     def _raw(self, start: int, stop: int) -> np.ndarray:
@@ -73,12 +75,12 @@ class OffsetMovie(Movie):
         step = int(offs[1] - offs[0]) if n > 1 else fb
         if n > 1 and step >= fb and step <= 2 * fb and np.all(np.diff(offs) == step):
             span = np.empty((n - 1) * step + fb, np.uint8)
-            self._fill(span, int(offs[0]))
+            self._fill(span, int(offs[0]), start, n)
             strided = np.lib.stride_tricks.as_strided(span, (n, fb), (step, 1))
             return np.ascontiguousarray(strided).view(self.file_dtype).reshape(n, *self.frame_shape)
         out = np.empty((n, *self.frame_shape), self.file_dtype)
         for k, o in enumerate(offs):
-            self._fill(out[k], int(o))
+            self._fill(out[k], int(o), start + k)
         return out
 
     def _stride(self) -> int | None:
@@ -105,7 +107,7 @@ class OffsetMovie(Movie):
         for s in range(start, stop, size):
             n = min(s + size, stop) - s
             span = buf[: (n - 1) * step + self.frame_bytes]
-            self._fill(span, int(self.offsets[s]))
+            self._fill(span, int(self.offsets[s]), s, n)
             yield s, np.ndarray((n, *self.frame_shape), self.file_dtype, buffer=span,
                                 strides=(step, *inner))
 

@@ -68,6 +68,12 @@ def try_stride(fd: int, hdr: Header, size: int, ref: PageInfo, kind: str) -> Pag
     s_ifd, s_dat = o[2] - o[1], d[2] - d[1]
     if s_ifd <= 0 or s_dat <= 0 or o[3] - o[2] != s_ifd or d[3] - d[2] != s_dat:
         return None
+    # Compressed pages: a constant stride holds only while every page stores the same number of
+    # bytes at the same place relative to its IFD; each checked IFD must show exactly that.
+    strips = (infos[1].stored, infos[1].data_end - o[1])
+    if kind == "ifd" and any((i.stored, i.data_end - oo) != strips
+                             for i, oo in zip(infos[1:], o[1:], strict=True)):
+        return None
     frame_bytes = ref.geometry.height * ref.geometry.width * ref.geometry.samples * ref.geometry.bits // 8
     ifd_bytes = hdr.count_size + ifds[1].n_entries * hdr.entry_size + hdr.pointer_size
     last_end = frame_bytes if kind == "data" else ifd_bytes
@@ -81,7 +87,8 @@ def try_stride(fd: int, hdr: Header, size: int, ref: PageInfo, kind: str) -> Pag
         ifd = read_ifd(fd, hdr, o[1] + (k - 1) * s_ifd, size)
         info = page_info(ifd) if ifd is not None else None
         if (not _matches(info, ref) or _entry(info, ifd.offset, kind) != d[1] + (k - 1) * s_dat
-                or info.data_end > size or info.data_end == 0):
+                or info.data_end > size or info.data_end == 0
+                or (kind == "ifd" and (info.stored, info.data_end - ifd.offset) != strips)):
             return None
         return ifd
 

@@ -86,4 +86,4 @@ def open_raw(path: Path, fingerprint_of) -> Movie:
     offsets = header + np.arange(n, dtype=np.int64) * frame_bytes
     layout = f"raw binary + JSON descriptor, {n} frames {h}x{w} {dtype.name} ({desc.get('byte_order', 'little')}-endian)"
     return OffsetMovie(data_path, offsets, (h, w), dtype, out, layout=layout, timing=timing,
-                       fingerprint=fingerprint_of(data_path), notices=notices)
+                       fingerprint=fingerprint_of(data_path, also=(desc_path,)), notices=notices)

@@ -24,7 +24,14 @@ from reviewer.movie.base import Movie, Timing
 from reviewer.movie.offsets import OffsetMovie
 from reviewer.movie.pageindex import frame_index
 from reviewer.movie.pixels import RGB_NOTICE, output_dtype, to_frames
-from reviewer.movie.tiffifd import PageInfo, numpy_dtype, page_info, read_header, read_ifd
+from reviewer.movie.tiffifd import (
+    PageInfo,
+    numpy_dtype,
+    page_info,
+    read_header,
+    read_ifd,
+    size_problem,
+)
 from reviewer.movie.timing import imagej_timing, ome_timing
 
 
@@ -54,10 +61,15 @@ class DecodedTiffMovie(Movie):
             fh = self._tif.filehandle
             fh.seek(int(self.ifd_offsets[i]))
             try:
-                arr = tifffile.TiffPage(self._tif, index=i).asarray()
+                page = tifffile.TiffPage(self._tif, index=i)
+                # shaped: (separate samples, depth, height, width, contiguous samples)
+                arr = page.asarray().reshape(page.shaped)[:, 0]
+                if arr.shape[1:3] != self.shape:
+                    raise ValueError(f"page is {arr.shape[1:3]}, the first page {self.shape}")
+                arr = np.moveaxis(arr, 0, 2).reshape(self.shape + ((-1,) if self._rgb else ()))
             except Exception as exc:  # noqa: BLE001 - any decoder failure is a bad file
-                raise BadInput(f"{self.path}: frame {i} cannot be decoded ({exc})") from None
-        arr = arr.reshape(self.shape + ((-1,) if self._rgb else ()))
+                text = str(exc).splitlines()[0][:100] if str(exc) else exc.__class__.__name__
+                raise BadInput(f"{self.path}: frame {i} cannot be decoded ({text})") from None
         return arr
 
     def _read(self, start: int, stop: int) -> np.ndarray:
@@ -139,7 +151,10 @@ def _open(path: Path, fd: int, size: int, fingerprint: str, show_progress: bool)
     rgb = geo.samples > 1
     file_dtype = numpy_dtype(geo, hdr.byteorder) if info0.plain else None
     if info0.plain and file_dtype is None:
-        info0 = PageInfo(geo, -1, info0.data_end)  # unusual pixel type: let tifffile decode it
+        info0 = PageInfo(geo, -1, info0.data_end, info0.stored)  # unusual type: tifffile decodes it
+    problem = size_problem(geo, info0.stored, size)
+    if problem:
+        raise BadInput(f"{path}: damaged TIFF: {problem}")
     tif, meta = _metadata(path)
     declared, contiguous, flavour = _declared_frames(meta, geo.samples)
     notices = [RGB_NOTICE] if rgb else []
@@ -174,7 +189,8 @@ def _open(path: Path, fd: int, size: int, fingerprint: str, show_progress: bool)
         steps = np.diff(offsets)
         kind = ("single-page" if n == 1 else "contiguous" if info0.plain and np.all(steps == frame_bytes)
                 else "page-per-frame")
-        comp = "" if info0.plain else f", compressed (TIFF compression {geo.compression})"
+        comp = ("" if info0.plain else f", compressed (TIFF compression {geo.compression})"
+                if geo.compression != 1 else ", decoded page by page")
         layout = f"{kind} {flavour}{big}{comp}, {n} pages, {how}"
     if n == 0:
         raise BadInput(f"{path}: truncated TIFF: no whole frame readable")

@@ -13,9 +13,7 @@ from typing import Any
 import numpy as np
 
 from reviewer.errors import BadInput
-from reviewer.movie.base import Timing
-
-TIMES_SUFFIX = ".times.csv"
+from reviewer.movie.base import TIMES_SUFFIX, Timing
 
 # Seconds per unit, for the time units ImageJ and OME write (OME uses UCUM-style symbols).
 _UNITS = {"s": 1.0, "sec": 1.0, "second": 1.0, "seconds": 1.0, "ms": 1e-3, "msec": 1e-3,
