@@ -39,7 +39,9 @@ def text_lines(d: dict) -> list[str]:
             f"duration  {dur}",
             f"timing    {timing}",
             f"size      {_size(d['file_size'])}",
-            f"layout    {d['layout']}"]
+            f"layout    {d['layout']}",
+            f"axes      {d.get('axes', 'TYX')}" + "".join(
+                f", {k} {v}" for k, v in (d.get("selection") or {}).items())]
 
 
 def run(args: argparse.Namespace) -> int:

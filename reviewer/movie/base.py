@@ -113,6 +113,8 @@ class Movie(ABC):
     timing: Timing = field(default_factory=Timing)
     fingerprint: str = ""
     notices: list[str] = field(default_factory=list)  # things the user must be told (truncation, ...)
+    axes: str = "TYX"  # the stored axes, frames axis T first or not, e.g. "YXT", "TZCYX", "TYXS"
+    selection: dict = field(default_factory=dict)  # what was chosen in the file: series, channel, z, ...
 
     @abstractmethod
     def _read(self, start: int, stop: int) -> np.ndarray:
@@ -198,6 +200,8 @@ class Movie(ABC):
             "timing_source": self.timing.source,
             "file_size": size,
             "layout": self.layout,
+            "axes": self.axes,
+            "selection": dict(self.selection),
             "fingerprint": self.fingerprint,
             "notices": list(self.notices),
         }

@@ -41,7 +41,8 @@ class DatasetMovie(Movie):
                  fingerprint: str = "", notices: list[str] | None = None, closer=None) -> None:
         self.data, self._rgb, self._closer = data, rgb, closer
         try:
-            out, note = (np.dtype(np.float32), None) if rgb else output_dtype(data.dtype, layout)
+            out, note = ((np.dtype(np.float32), None) if rgb
+                         else output_dtype(data.dtype, layout.split(",")[0]))
         except (ValueError, TypeError) as exc:
             raise BadInput(f"{path}: {exc}") from None
         notices = list(notices or []) + ([note] if note else [])

@@ -125,7 +125,8 @@ def _stored_timing(meta: dict, n: int) -> Timing | None:
     return timing
 
 
-def open_tiff(path: Path, fingerprint: str, show_progress: bool = True) -> Movie:
+def open_tiff(path: Path, fingerprint: str, show_progress: bool = True, *, channel: int | None = None,
+              z: int | None = None, series: int | None = None) -> Movie:
     """Open a TIFF file as a movie (timing from the file's metadata; see timing.resolve)."""
     size = path.stat().st_size
     fd = os.open(path, os.O_RDONLY)
