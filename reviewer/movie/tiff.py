@@ -32,6 +32,7 @@ from reviewer.movie.tiffifd import (
     read_ifd,
     size_problem,
 )
+from reviewer.movie.tiffplanes import choose, imagej_planes, ome_planes
 from reviewer.movie.timing import imagej_timing, ome_timing
 
 
@@ -115,11 +116,32 @@ def _declared_frames(meta: dict, samples: int) -> tuple[int | None, bool, str]:
     return None, False, "TIFF"
 
 
-def _stored_timing(meta: dict, n: int) -> Timing | None:
+def _reference(fd: int, hdr, size: int, ifd0, info0):
+    """(IFD, page info, its position) of the first page of the movie: the frame geometry most common
+    among the first pages (a thumbnail or overview stored first is not the movie)."""
+    seen = [(ifd0, info0)]
+    ifd = ifd0
+    while len(seen) < 16 and ifd.next:
+        ifd = read_ifd(fd, hdr, ifd.next, size)
+        info = page_info(ifd) if ifd is not None else None
+        if info is None:
+            break
+        seen.append((ifd, info))
+    counts: dict = {}
+    for _, info in seen:
+        counts[info.geometry] = counts.get(info.geometry, 0) + 1
+    best = max(counts, key=lambda g: (counts[g], g.height * g.width))
+    if counts[best] <= counts[info0.geometry]:
+        return ifd0, info0, 0
+    k = next(i for i, (_, info) in enumerate(seen) if info.geometry == best)
+    return seen[k][0], seen[k][1], k
+
+
+def _stored_timing(meta: dict, n: int, where: tuple[int, int, int] = (0, 0, 0)) -> Timing | None:
     timing = imagej_timing(meta.get("imagej"))
     if timing is None and meta.get("ome"):
         try:
-            timing = ome_timing(tifffile.xml2dict(meta["ome"]), n)
+            timing = ome_timing(tifffile.xml2dict(meta["ome"]), n, *where)
         except Exception:  # noqa: BLE001 - unreadable XML: no timing
             timing = None
     return timing
@@ -131,12 +153,13 @@ def open_tiff(path: Path, fingerprint: str, show_progress: bool = True, *, chann
     size = path.stat().st_size
     fd = os.open(path, os.O_RDONLY)
     try:
-        return _open(path, fd, size, fingerprint, show_progress)
+        return _open(path, fd, size, fingerprint, show_progress, channel, z, series)
     finally:
         os.close(fd)
 
 
-def _open(path: Path, fd: int, size: int, fingerprint: str, show_progress: bool) -> Movie:
+def _open(path: Path, fd: int, size: int, fingerprint: str, show_progress: bool,
+          channel: int | None, z: int | None, series: int | None) -> Movie:
     hdr = read_header(fd)
     if hdr is None:
         raise BadInput(f"{path}: not a TIFF file (no TIFF header)")
@@ -146,6 +169,7 @@ def _open(path: Path, fd: int, size: int, fingerprint: str, show_progress: bool)
     info0 = page_info(ifd0)
     if info0 is None:
         raise BadInput(f"{path}: damaged TIFF: the first page has no image size")
+    ifd0, info0, first_page = _reference(fd, hdr, size, ifd0, info0)
     geo = info0.geometry
     if geo.samples not in (1, 3, 4):
         raise BadInput(f"{path}: pages with {geo.samples} samples per pixel are not supported")
@@ -164,8 +188,24 @@ def _open(path: Path, fd: int, size: int, fingerprint: str, show_progress: bool)
     frame_bytes = int(np.prod(frame_shape)) * geo.bits // 8
     movie_kw = {"fingerprint": fingerprint}
 
+    planes = None
+    if meta.get("imagej"):
+        planes = imagej_planes(meta["imagej"])
+    elif meta.get("ome"):
+        try:
+            ome = tifffile.xml2dict(meta["ome"])
+        except Exception:  # noqa: BLE001 - unreadable XML: the pages alone decide
+            ome = None
+        planes = ome_planes(ome, geo.height, geo.width, geo.samples, series, path) if ome else None
+    if series is not None and (planes is None or planes.series is None):
+        raise BadInput(f"{path}: --series: this TIFF holds one image series")
+    if (channel is not None or z is not None) and planes is None:
+        raise BadInput(f"{path}: --channel/--z: this TIFF holds no channels or z-planes")
+    if first_page:
+        notices.append(f"{first_page} page(s) of another size before the movie left out")
+
     offsets = None
-    if info0.plain and contiguous and declared and declared > 1:
+    if info0.plain and contiguous and declared and declared > 1 and not first_page:
         first = info0.data_offset
         ifd1 = read_ifd(fd, hdr, ifd0.next, size) if ifd0.next else None
         info1 = page_info(ifd1) if ifd1 is not None else None
@@ -178,12 +218,17 @@ def _open(path: Path, fd: int, size: int, fingerprint: str, show_progress: bool)
     if offsets is None:
         index = frame_index(fd, hdr, size, info0, fingerprint, show_progress)
         offsets = index.offsets
-        if flavour == "OME-TIFF" and declared and len(offsets) > declared:
-            notices.append(f"{len(offsets)} pages; the first {declared} (OME image 0) are read")
-            offsets = offsets[:declared]
+        if (len(offsets) == 1 and index.chain_broken and info0.plain and not first_page
+                and ifd0.next >= size and ifd0.next >= info0.data_offset + 2 * frame_bytes):
+            # the directories came after the pixels and are cut off (e.g. a truncated OME-TIFF):
+            # read the whole frames that follow the first one at its size
+            whole = (min(size, ifd0.next) - info0.data_offset) // frame_bytes
+            offsets = info0.data_offset + np.arange(whole, dtype=np.int64) * frame_bytes
+            notices.append(f"the page directories after the pixels are cut off: {whole} whole "
+                           "frames read as one contiguous run after the first page")
         n = len(offsets)
         truncated = index.chain_broken or bool(declared and n < declared)
-        if index.skipped:
+        if index.skipped > first_page:
             notices.append(f"{index.skipped} pages of another size or pixel type left out")
         how = {"stride": "offsets from a constant page stride", "walk": "offsets from an IFD walk",
                "cache": "cached frame index"}[index.method]
@@ -193,6 +238,14 @@ def _open(path: Path, fd: int, size: int, fingerprint: str, show_progress: bool)
         comp = ("" if info0.plain else f", compressed (TIFF compression {geo.compression})"
                 if geo.compression != 1 else ", decoded page by page")
         layout = f"{kind} {flavour}{big}{comp}, {n} pages, {how}"
+    axes, picked, timing_planes = "TYX" + ("S" if rgb else ""), {}, (0, 0, 0)
+    if planes is not None:
+        offsets, picked = choose(planes, offsets, z, channel, path, notices)
+        declared, n, axes = planes.sizes["T"], len(offsets), planes.axes + ("S" if rgb else "")
+        truncated = n < declared
+        timing_planes = (planes.series or 0, picked.get("z", 0), picked.get("channel", 0))
+        if planes.axes != "TYX" or planes.series_count > 1:
+            layout += f"; {n} time points of {axes}" + "".join(f", {k} {v}" for k, v in picked.items())
     if n == 0:
         raise BadInput(f"{path}: truncated TIFF: no whole frame readable")
     if truncated:
@@ -202,7 +255,8 @@ def _open(path: Path, fd: int, size: int, fingerprint: str, show_progress: bool)
             notices.append(f"truncated: {n} frames readable, the file ends before the next frame")
     if n == 1:
         notices.append("a single 2-D image: read as a 1-frame movie")
-    movie_kw.update(layout=layout, timing=_stored_timing(meta, n) or Timing(), notices=notices)
+    movie_kw.update(layout=layout, timing=_stored_timing(meta, n, timing_planes) or Timing(),
+                    notices=notices)
     if info0.plain:
         try:
             out_dtype, note = output_dtype(file_dtype, "TIFF")
@@ -214,7 +268,8 @@ def _open(path: Path, fd: int, size: int, fingerprint: str, show_progress: bool)
             out_dtype = np.dtype(np.float32)
         if tif is not None:
             tif.close()
-        return OffsetMovie(path, offsets, frame_shape, file_dtype, out_dtype, **movie_kw)
+        return _chosen(OffsetMovie(path, offsets, frame_shape, file_dtype, out_dtype, **movie_kw),
+                       axes, picked)
     if tif is None:
         raise BadInput(f"{path}: compressed TIFF pages that tifffile cannot open")
     page_dtype = tif.pages.first.dtype
@@ -224,4 +279,10 @@ def _open(path: Path, fd: int, size: int, fingerprint: str, show_progress: bool)
         raise BadInput(f"{path}: {exc}") from None
     if note:
         notices.append(note)
-    return DecodedTiffMovie(path, offsets, tif, out_dtype, rgb, (geo.height, geo.width), **movie_kw)
+    return _chosen(DecodedTiffMovie(path, offsets, tif, out_dtype, rgb, (geo.height, geo.width),
+                                    **movie_kw), axes, picked)
+
+
+def _chosen(movie: Movie, axes: str, picked: dict) -> Movie:
+    movie.axes, movie.selection = axes, picked
+    return movie

@@ -1,0 +1,147 @@
+"""TIFF files that hold more than a plain stack, written by tifffile (not by our code): hyperstacks,
+OME images with C and Z, a thumbnail or overview first, several series, a truncated OME-TIFF, planar
+RGB pages and compressed pages of varying size."""
+
+from __future__ import annotations
+
+import csv
+import json
+
+import numpy as np
+import pytest
+import tifffile
+
+from reviewer.cli import main
+from reviewer.errors import BadInput
+from reviewer.movie import open_movie
+
+T, Z, C, Y, X, STEP = 80, 3, 2, 24, 32, 40
+
+
+def hyperstack(seed=0):
+    """(T, Z, C, Y, X) Poisson planes; in z 1 / channel 1 a dark band appears at time point STEP."""
+    lam = np.full((T, Z, C, Y, X), 40.0)
+    lam[STEP:, 1, 1, 8:11, 4:28] *= 0.4
+    return np.random.default_rng(seed).poisson(lam).astype(np.uint16)
+
+
+def info_json(capsys, path, *options):
+    assert main(["info", str(path), "--json", *options]) == 0, capsys.readouterr().err
+    return json.loads(capsys.readouterr().out)
+
+
+@pytest.mark.parametrize("flavour", ["imagej", "ome"])
+def test_hyperstack_time_is_the_frame_axis(tmp_path, capsys, flavour):
+    data = hyperstack()
+    p = tmp_path / f"hs_{flavour}.tif"
+    if flavour == "imagej":
+        tifffile.imwrite(p, data, imagej=True, metadata={"axes": "TZCYX", "finterval": 0.004})
+    else:
+        tifffile.imwrite(p, data, ome=True, metadata={"axes": "TZCYX", "TimeIncrement": 0.004})
+    d = info_json(capsys, p)
+    assert (d["frames"], d["height"], d["width"], d["fps"]) == (T, Y, X, pytest.approx(250.0))
+    assert d["axes"] == "TZCYX" and d["selection"] == {"z": 0, "channel": 0}
+    assert any("3 z-planes" in n for n in d["notices"]) and any("2 channels" in n for n in d["notices"])
+    for zz, cc in ((0, 0), (2, 1), (1, 0)):
+        with open_movie(p, z=zz, channel=cc) as m:
+            np.testing.assert_array_equal(m.block(0, T), data[:, zz, cc])
+    out = tmp_path / "found.csv"
+    assert main(["scan", str(p), "--z", "1", "--channel", "1", "-o", str(out)]) == 0
+    with open(out, newline="") as f:
+        assert any(abs(int(r["frame"]) - STEP) <= 1 for r in csv.DictReader(f))
+    assert main(["info", str(p), "--channel", "5"]) == 2
+    assert "--channel 5 outside 0..1" in capsys.readouterr().err
+
+
+def test_ome_plane_delta_t_per_time_point(tmp_path):
+    data = hyperstack()[:6, :1]  # T, Z=1, C=2
+    times = np.array([0.0, 0.1, 0.25, 0.3, 0.5, 0.55])
+    planes = {"TheT": [t for t in range(6) for _ in range(2)], "TheZ": [0] * 12,
+              "TheC": [c for _ in range(6) for c in range(2)],
+              "DeltaT": [float(times[t]) for t in range(6) for _ in range(2)]}
+    p = tmp_path / "dt.ome.tif"
+    tifffile.imwrite(p, data, ome=True, metadata={"axes": "TZCYX", "Plane": planes})
+    with open_movie(p, channel=1) as m:
+        assert m.n_frames == 6
+        np.testing.assert_allclose(m.timing.times_s, times)
+        np.testing.assert_array_equal(m.block(0, 6), data[:, 0, 1])
+
+
+def test_thumbnail_first(tmp_path, capsys):
+    frames = hyperstack()[:, 0, 0]
+    p = tmp_path / "thumb.tif"
+    with tifffile.TiffWriter(p) as w:
+        w.write(np.zeros((6, 8), np.uint8))  # a small preview image as page 0
+        for f in frames:
+            w.write(f, contiguous=False)
+    d = info_json(capsys, p)
+    assert (d["frames"], d["height"], d["width"], d["dtype"]) == (T, Y, X, "uint16")
+    with open_movie(p) as m:
+        np.testing.assert_array_equal(m.block(0, T), frames)
+
+
+def test_overview_series_first_and_series_option(tmp_path, capsys):
+    frames = hyperstack()[:, 0, 0]
+    p = tmp_path / "multi.ome.tif"
+    with tifffile.TiffWriter(p, ome=True) as w:
+        w.write(np.zeros((60, 70), np.uint16), metadata={"axes": "YX"})  # overview image
+        w.write(frames, metadata={"axes": "TYX", "TimeIncrement": 0.01})
+        w.write(frames[:7, ::-1], metadata={"axes": "TYX"})  # a second, shorter position
+    d = info_json(capsys, p)
+    assert (d["frames"], d["height"], d["width"], d["fps"]) == (T, Y, X, 100.0)
+    assert d["selection"] == {"series": 1}
+    with open_movie(p) as m:
+        np.testing.assert_array_equal(m.block(0, T), frames)
+    with open_movie(p, series=2) as m:
+        assert m.n_frames == 7
+        np.testing.assert_array_equal(m.block(0, 7), frames[:7, ::-1])
+    with pytest.raises(BadInput, match="another frame size"):
+        open_movie(p, series=0)
+    with pytest.raises(BadInput, match="outside 0..2"):
+        open_movie(p, series=3)
+
+
+def test_truncated_ome_tiff_reads_the_whole_frames(tmp_path, capsys):
+    frames = np.random.default_rng(1).integers(0, 4000, (200, 16, 20), dtype=np.uint16)
+    p = tmp_path / "cut.ome.tif"
+    tifffile.imwrite(p, frames, ome=True, metadata={"axes": "TYX"})  # IFDs and XML after the pixels
+    with tifffile.TiffFile(p) as tif:
+        start = tif.pages.first.dataoffsets[0]
+    raw = p.read_bytes()
+    p.write_bytes(raw[: start + 150 * 16 * 20 * 2 + 77])  # 150 whole frames and a piece
+    d = info_json(capsys, p)
+    assert d["frames"] == 150 and any("truncated" in n or "cut off" in n for n in d["notices"])
+    with open_movie(p) as m:
+        np.testing.assert_array_equal(m.block(0, 150), frames[:150])
+
+
+@pytest.mark.parametrize("compression", [None, "zlib", "packbits"])
+def test_planar_rgb_pages(tmp_path, compression):
+    rgb = np.random.default_rng(2).integers(0, 255, (5, 3, 12, 14), dtype=np.uint8)
+    p = tmp_path / "planar.tif"
+    with tifffile.TiffWriter(p) as w:
+        for f in rgb:
+            w.write(f, photometric="rgb", planarconfig="separate", compression=compression)
+    # ITU-R BT.601 luma weights
+    expect = np.tensordot(np.moveaxis(rgb, 1, 3).astype(np.float32),
+                          np.array([0.299, 0.587, 0.114], np.float32), axes=([-1], [0]))
+    with open_movie(p) as m:
+        assert (m.n_frames, m.shape) == (5, (12, 14))
+        np.testing.assert_allclose(m.block(0, 5), expect, rtol=1e-6)
+
+
+def test_packbits_pages_of_nearly_constant_size(tmp_path):
+    n = 66
+    frames = np.zeros((n, 8, 64), np.uint8)
+    frames[:, 0, 0] = 5
+    for k in range(6, n - 1, 2):  # pairs of pages 2 bytes longer / 2 bytes shorter when compressed
+        frames[k, 0, 1:3] = (6, 7)
+        frames[k + 1, 0, 0] = 0
+    frames[:, 4, 10] = np.arange(n) + 1  # each frame marked with its index
+    p = tmp_path / "pb.tif"
+    with tifffile.TiffWriter(p) as w:
+        for f in frames:
+            w.write(f, compression="packbits", contiguous=False)
+    with open_movie(p) as m:
+        assert m.n_frames == n
+        np.testing.assert_array_equal(m.block(0, n), frames)
