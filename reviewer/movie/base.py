@@ -115,6 +115,7 @@ class Movie(ABC):
     notices: list[str] = field(default_factory=list)  # things the user must be told (truncation, ...)
     axes: str = "TYX"  # the stored axes, frames axis T first or not, e.g. "YXT", "TZCYX", "TYXS"
     selection: dict = field(default_factory=dict)  # what was chosen in the file: series, channel, z, ...
+    pixel_size_nm: float | None = None  # when the file stores it (MRC voxel size, ...)
 
     @abstractmethod
     def _read(self, start: int, stop: int) -> np.ndarray:
@@ -202,6 +203,7 @@ class Movie(ABC):
             "layout": self.layout,
             "axes": self.axes,
             "selection": dict(self.selection),
+            "pixel_size_nm": self.pixel_size_nm,
             "fingerprint": self.fingerprint,
             "notices": list(self.notices),
         }

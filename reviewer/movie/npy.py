@@ -6,6 +6,7 @@ import ast
 import math
 import struct
 import warnings
+import zipfile
 from pathlib import Path
 
 import numpy as np
@@ -130,3 +131,66 @@ def open_npy(path: Path, fingerprint: str) -> Movie:
     offsets = offset + np.arange(n, dtype=np.int64) * frame_bytes
     return OffsetMovie(path, offsets, frame_shape, dtype, out, layout=layout, fingerprint=fingerprint,
                        notices=notices)
+
+
+def _npz_members(path: Path) -> dict[str, tuple[tuple[int, ...], np.dtype, int | None]]:
+    """{array name: (shape, dtype, byte offset of its data in the .npz or None when compressed)}."""
+    out = {}
+    with zipfile.ZipFile(path) as z, open(path, "rb") as raw:
+        for info in z.infolist():
+            if not info.filename.endswith(".npy"):
+                continue
+            with z.open(info) as f:
+                version = np.lib.format.read_magic(f)
+                if version not in _VERSIONS:
+                    raise BadInput(f"{path}: member {info.filename} has .npy version {version}")
+                reader = (np.lib.format.read_array_header_1_0 if version == (1, 0)
+                          else np.lib.format.read_array_header_2_0)
+                shape, fortran, dtype = reader(f)
+                header_len = f.tell()
+            offset = None
+            if info.compress_type == zipfile.ZIP_STORED and not fortran:
+                raw.seek(info.header_offset)
+                local = raw.read(30)  # ZIP local file header (PKWARE APPNOTE 4.3.7)
+                name_len, extra_len = struct.unpack("<HH", local[26:30])
+                offset = info.header_offset + 30 + name_len + extra_len + header_len
+            out[info.filename[:-4]] = (tuple(shape), np.dtype(dtype), offset)
+    return out
+
+
+class _Member:
+    """Shape and dtype of an .npz member without loading it (for choosing one)."""
+
+    def __init__(self, shape, dtype) -> None:
+        self.shape, self.dtype = shape, dtype
+
+
+def open_npz(path: Path, fingerprint: str, dataset: str | None = None) -> Movie:
+    """One array of a NumPy .npz archive (np.savez / np.savez_compressed): the largest 3-D one or
+    `dataset`. Stored (uncompressed) members are read at byte offsets; compressed ones are loaded."""
+    from reviewer.movie.arrays import pick
+
+    try:
+        members = _npz_members(path)
+    except (zipfile.BadZipFile, ValueError, OSError, EOFError, struct.error) as exc:
+        raise BadInput(f"{path}: not a readable .npz archive ({str(exc).splitlines()[0][:80]})") from None
+    key, member = pick({k: _Member(s, d) for k, (s, d, _) in members.items()}, path, dataset, "array")
+    shape, dtype, offset = members[key]
+    if dtype.kind not in "iuf":
+        raise BadInput(f"{path}: array {key} holds {dtype} values, not pixel values")
+    shape, rgb, notices = frames_layout(shape, path, f"array {key}")
+    if offset is not None:
+        frame_bytes = math.prod(shape[1:]) * dtype.itemsize
+        out, note = (np.dtype(np.float32), None) if rgb else output_dtype(dtype, ".npz")
+        offsets = offset + np.arange(shape[0], dtype=np.int64) * frame_bytes
+        movie = OffsetMovie(path, offsets, shape[1:], dtype, out, fingerprint=fingerprint,
+                            layout=f"NumPy .npz array {key}, {shape[0]} frames, read by offset",
+                            notices=notices + ([note] if note else []))
+    else:
+        with np.load(path, allow_pickle=False) as z:
+            data = z[key].reshape(shape)
+        notices.append(f"array {key} is compressed: loaded into memory ({data.nbytes / 2**20:.1f} MiB)")
+        movie = DatasetMovie(data, path, layout=f"NumPy .npz array {key} (compressed), "
+                             f"{shape[0]} frames", rgb=rgb, fingerprint=fingerprint, notices=notices)
+    movie.selection = {"dataset": key} if len(members) > 1 else {}
+    return movie

@@ -15,13 +15,16 @@ from reviewer.movie.base import Movie, fingerprint_file
 from reviewer.movie.extra import is_zarr, open_zarr
 from reviewer.movie.folder import FolderMovie, _read_image, fingerprint_folder, open_folder
 from reviewer.movie.hdf5 import H5_SUFFIXES, open_hdf5
-from reviewer.movie.npy import open_npy
+from reviewer.movie.mrc import is_mrc, open_mrc
+from reviewer.movie.npy import open_npy, open_npz
+from reviewer.movie.plugins import open_with_plugins
 from reviewer.movie.raw import RAW_SUFFIXES, open_raw
 from reviewer.movie.tiff import open_tiff
 from reviewer.movie.timing import resolve
 
 TIFF_SUFFIXES = (".tif", ".tiff", ".btf", ".tf8", ".tf2")
-KNOWN = "TIFF, .npy, .png, HDF5, raw + .json descriptor, or a folder of PNG/TIFF frames"
+KNOWN = ("TIFF, .npy, .npz, .png, HDF5, MRC, raw + .json descriptor, a Zarr store or a folder of "
+         "PNG/TIFF frames")
 
 
 @dataclass(frozen=True)
@@ -39,7 +42,7 @@ class Choice:
 
 
 # Which options each container understands.
-_USES = {"tiff": {"channel", "z", "series"}, "hdf5": {"dataset", "axes"},
+_USES = {"tiff": {"channel", "z", "series"}, "hdf5": {"dataset", "axes"}, "npz": {"dataset"},
          "zarr": {"dataset", "axes", "channel", "z"}}
 
 
@@ -57,11 +60,13 @@ def _sniff(path: Path) -> str | None:
 
 def _kind(p: Path) -> str | None:
     suffix = p.suffix.lower()
+    if is_mrc(p):
+        return "mrc"
     if suffix in TIFF_SUFFIXES:
         return "tiff"
     if suffix in H5_SUFFIXES:
         return "hdf5"
-    if suffix in (".npy", ".png"):
+    if suffix in (".npy", ".png", ".npz"):
         return suffix[1:]
     if suffix in RAW_SUFFIXES or suffix == ".json" or (p.parent / (p.name + ".json")).is_file():
         return "raw"
@@ -86,12 +91,22 @@ def _open_file(p: Path, show_progress: bool, choice: Choice) -> Movie:
                          series=choice.series)
     if kind == "npy":
         return open_npy(p, fingerprint_file(p))
+    if kind == "npz":
+        return open_npz(p, fingerprint_file(p), choice.dataset)
+    if kind == "mrc":
+        return open_mrc(p, fingerprint_file(p))
     if kind == "hdf5":
         return open_hdf5(p, fingerprint_file(p), choice.dataset, choice.axes)
     if kind == "raw":
         return open_raw(p, fingerprint_file)
     if kind == "png":
         return FolderMovie(p, [p], _read_image(p), fingerprint_folder([p]))
+    movie = open_with_plugins(p)
+    if movie is not None:
+        if choice.given():
+            movie.close()
+            _check_options(p, "plug-in", choice)
+        return movie
     suffix = p.suffix.lower()
     raise BadInput(f"{p}: unknown movie format '{suffix or 'no suffix'}' (expected {KNOWN})")
 
