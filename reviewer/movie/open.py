@@ -21,10 +21,11 @@ from reviewer.movie.plugins import open_with_plugins
 from reviewer.movie.raw import RAW_SUFFIXES, open_raw
 from reviewer.movie.tiff import open_tiff
 from reviewer.movie.timing import resolve
+from reviewer.movie.video import VIDEO_SUFFIXES, open_video
 
 TIFF_SUFFIXES = (".tif", ".tiff", ".btf", ".tf8", ".tf2")
-KNOWN = ("TIFF, .npy, .npz, .png, HDF5, MRC, raw + .json descriptor, a Zarr store or a folder of "
-         "PNG/TIFF frames")
+KNOWN = ("TIFF, .npy, .npz, .png, HDF5, MRC, video, raw + .json descriptor, a Zarr store or a "
+         "folder of PNG/TIFF frames")
 
 
 @dataclass(frozen=True)
@@ -66,6 +67,8 @@ def _kind(p: Path) -> str | None:
         return "tiff"
     if suffix in H5_SUFFIXES:
         return "hdf5"
+    if suffix in VIDEO_SUFFIXES:
+        return "video"
     if suffix in (".npy", ".png", ".npz"):
         return suffix[1:]
     if suffix in RAW_SUFFIXES or suffix == ".json" or (p.parent / (p.name + ".json")).is_file():
@@ -91,6 +94,8 @@ def _open_file(p: Path, show_progress: bool, choice: Choice) -> Movie:
                          series=choice.series)
     if kind == "npy":
         return open_npy(p, fingerprint_file(p))
+    if kind == "video":
+        return open_video(p, fingerprint_file(p))
     if kind == "npz":
         return open_npz(p, fingerprint_file(p), choice.dataset)
     if kind == "mrc":
