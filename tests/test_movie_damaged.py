@@ -168,3 +168,12 @@ def test_fingerprint_covers_the_times_csv(tmp_path):
     timed = open_movie(p).fingerprint
     (tmp_path / "m.npy.times.csv").write_text("frame,time_s\n0,0\n1,0.6\n2,1.0\n")
     assert len({plain, timed, open_movie(p).fingerprint}) == 3
+
+
+def test_hdf5_dataset_claiming_huge_frames(tmp_path, capsys):
+    h5py = pytest.importorskip("h5py")
+    p = tmp_path / "sparse.h5"
+    with h5py.File(p, "w") as f:  # 3 x 200000 x 200000 declared, nothing written: a 2 KB file
+        f.create_dataset("m", shape=(3, 200000, 200000), dtype="u2", chunks=(1, 1000, 1000),
+                         compression="gzip")
+    assert "GiB" in _one_line_exit_2(capsys, p, "scan")

@@ -14,7 +14,7 @@ import numpy as np
 from reviewer.errors import BadInput
 from reviewer.movie.base import Movie, Timing
 from reviewer.movie.offsets import OffsetMovie
-from reviewer.movie.pixels import RGB_NOTICE, output_dtype, to_frames
+from reviewer.movie.pixels import RGB_NOTICE, frame_size_problem, output_dtype, to_frames
 
 SINGLE_NOTICE = "a single 2-D image: read as a 1-frame movie"
 
@@ -47,6 +47,10 @@ class DatasetMovie(Movie):
         except (ValueError, TypeError) as exc:
             raise BadInput(f"{path}: {exc}") from None
         notices = list(notices or []) + ([note] if note else [])
+        frame_bytes = math.prod(data.shape[1:]) * np.dtype(data.dtype).itemsize
+        problem = frame_size_problem(frame_bytes)
+        if problem:
+            raise BadInput(f"{path}: frames of {tuple(data.shape[1:])} {data.dtype} values: {problem}")
         super().__init__(path=Path(path), n_frames=int(data.shape[0]),
                          shape=(int(data.shape[1]), int(data.shape[2])), dtype=out, layout=layout,
                          timing=timing or Timing(), fingerprint=fingerprint, notices=notices)

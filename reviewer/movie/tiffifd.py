@@ -13,6 +13,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from reviewer.movie.pixels import frame_size_problem
+
 # TIFF field type -> (numpy code, size in bytes); TIFF 6.0 section 2 plus BigTIFF LONG8/SLONG8/IFD8.
 _TYPES = {1: ("u1", 1), 2: ("u1", 1), 3: ("u2", 2), 4: ("u4", 4), 5: ("u4", 8), 6: ("i1", 1),
           7: ("u1", 1), 8: ("i2", 2), 9: ("i4", 4), 10: ("i4", 8), 11: ("f4", 4), 12: ("f8", 8),
@@ -220,17 +222,17 @@ def numpy_dtype(geo: Geometry, byteorder: str) -> np.dtype | None:
 # Largest decoded/stored size ratio each TIFF compression can reach (a page that claims more is damaged).
 # PackBits: 2 bytes repeat a byte 128 times (TIFF 6.0 section 9); Deflate: 1032:1 (zlib technical
 # details, from memory); LZW: 12-bit codes for strings of up to 4096 bytes (TIFF 6.0 section 13).
-# Others (JPEG, LZMA, Zstandard, ...) are only bounded by MAX_FRAME_BYTES.
+# Others (JPEG, LZMA, Zstandard, ...) are only bounded by pixels.frame_limit().
 MAX_RATIO = {1: 1, 32773: 64, 8: 1100, 32946: 1100, 5: 2800}
-MAX_FRAME_BYTES = 8 << 30  # one frame over 8 GiB is refused: no camera writes such frames
 
 
 def size_problem(geo: Geometry, stored: int, file_size: int) -> str | None:
     """Why a page's claimed frame size cannot be true for the bytes it has, or None when it can."""
     need = geo.frame_bytes
     text = f"pages claim {geo.height}x{geo.width}x{geo.samples} {geo.bits}-bit frames ({need:,} bytes)"
-    if need > MAX_FRAME_BYTES:
-        return f"{text}, more than the {MAX_FRAME_BYTES >> 30} GiB a frame may have"
+    too_big = frame_size_problem(need)
+    if too_big:
+        return f"{text}: {too_big}"
     ratio = MAX_RATIO.get(geo.compression)
     if ratio is not None and stored and need > stored * ratio:
         return f"{text} but the first page stores only {stored:,} bytes"
