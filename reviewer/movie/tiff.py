@@ -245,6 +245,7 @@ def _open(path: Path, fd: int, size: int, fingerprint: str, show_progress: bool,
         truncated = n < declared
         timing_planes = (planes.series or 0, picked.get("z", 0), picked.get("channel", 0))
         if planes.axes != "TYX" or planes.series_count > 1:
+            layout = layout.replace(" frames read by offset", " planes read by offset")
             layout += f"; {n} time points of {axes}" + "".join(f", {k} {v}" for k, v in picked.items())
     if n == 0:
         raise BadInput(f"{path}: truncated TIFF: no whole frame readable")

@@ -67,15 +67,18 @@ def ome_planes(ome: dict, height: int, width: int, samples: int, series: int | N
                path: Path) -> Planes | None:
     """Planes of the OME image to read: --series, else the image of this frame size with most planes."""
     images = _images(ome)
-    rows = []
+    rows, listing = [], []
     for k, image in enumerate(images):
         px = image.get("Pixels") or {}
         try:
             sizes = {"T": int(px.get("SizeT", 1)), "Z": int(px.get("SizeZ", 1)),
                      "C": max(1, int(px.get("SizeC", 1)) // samples)}
-            same = int(px.get("SizeY", 0)) == height and int(px.get("SizeX", 0)) == width
+            size_yx = (int(px.get("SizeY", 0)), int(px.get("SizeX", 0)))
         except (TypeError, ValueError):
             return None
+        same = size_yx == (height, width)
+        count = sizes["T"] * sizes["Z"] * sizes["C"]
+        listing.append(f"{k}: {count} plane{'s' * (count != 1)} of {size_yx[0]}x{size_yx[1]}")
         order = str(px.get("DimensionOrder", "XYZCT")).upper()
         fastest = "".join(a for a in order[2:] if a in "TZC")
         if sorted(fastest) != ["C", "T", "Z"]:
@@ -98,8 +101,8 @@ def ome_planes(ome: dict, height: int, width: int, samples: int, series: int | N
     start = sum(r[1]["T"] * r[1]["Z"] * r[1]["C"] for r in rows[:k] if r[3])
     planes = Planes(sizes, fastest, start, series=k, series_count=len(rows))
     if len(rows) > 1 and series is None:
-        planes.notes.append(f"{len(rows)} image series: reading series {k}, the one with most "
-                            "planes (--series chooses another)")
+        planes.notes.append(f"{len(rows)} image series ({'; '.join(listing)}): reading series {k}, "
+                            "the one with most frames (--series chooses another)")
     return planes
 
 
