@@ -145,3 +145,26 @@ def test_packbits_pages_of_nearly_constant_size(tmp_path):
     with open_movie(p) as m:
         assert m.n_frames == n
         np.testing.assert_array_equal(m.block(0, n), frames)
+
+
+@pytest.mark.parametrize("contiguous", [True, False])
+def test_runs_of_same_sized_pages_longest_first(tmp_path, capsys, contiguous):
+    frames = hyperstack()[:70, 0, 0]
+    p = tmp_path / "runs.tif"
+    with tifffile.TiffWriter(p) as w:  # tifffile series: 10 frames, a small image, 60 frames
+        if contiguous:
+            w.write(frames[:10])
+            w.write(np.zeros((8, 8), np.uint8))
+            w.write(frames[10:])
+        else:
+            for f in frames[:10]:
+                w.write(f, contiguous=False)
+            w.write(np.zeros((8, 8), np.uint8))
+            for f in frames[10:]:
+                w.write(f, contiguous=False)
+    d = info_json(capsys, p)
+    assert d["frames"] == 60 and d["selection"] == {"series": 1}
+    with open_movie(p) as m:
+        np.testing.assert_array_equal(m.block(0, 60), frames[10:])
+    with open_movie(p, series=0) as m:
+        np.testing.assert_array_equal(m.block(0, 10), frames[:10])

@@ -30,7 +30,8 @@ from reviewer.movie.tiffifd import (
 from reviewer.paths import cache_dir
 from reviewer.progress import Progress
 
-INDEX_VERSION = 1
+INDEX_VERSION = 2  # 2: runs of pages kept
+MAX_RUNS = 1000  # runs of same-sized pages remembered (more: the rest count as one run)
 N_SAMPLES = 16  # IFDs checked in the middle of the file before trusting a constant stride
 PROGRESS_MIN_BYTES = 256 << 20  # files smaller than this are walked without a progress bar
 
@@ -41,6 +42,7 @@ class PageIndex:
     kind: str  # "data" (pixel offsets) or "ifd" (IFD offsets, decode each page)
     chain_broken: bool = False  # the IFD chain points past the end of the file (truncated)
     skipped: int = 0  # pages of another geometry left out
+    runs: tuple[int, ...] = (0,)  # first frame of each run of pages not interrupted by other pages
     method: str = "walk"  # "stride", "walk" or "cache"
 
 
@@ -157,6 +159,7 @@ def walk(fd: int, hdr: Header, size: int, ref: PageInfo, kind: str,
     out = np.empty(1024, dtype=np.int64)
     seen = np.empty(1024, dtype=np.int64)  # IFD offsets visited, to catch loops in the chain
     n = visited = skipped = 0
+    runs, gap = [0], False
     offset, previous = hdr.first_ifd, -1
     broken = False
     g = ref.geometry
@@ -194,12 +197,16 @@ def walk(fd: int, hdr: Header, size: int, ref: PageInfo, kind: str,
                 if kind == "data":  # this IFD becomes the template for the fast path
                     same = _template(hdr, table)
         if entry is not None:
+            if gap and n and len(runs) < MAX_RUNS:
+                runs.append(n)
+            gap = False
             if n == len(out):
                 out = np.resize(out, 2 * n)
             out[n] = entry
             n += 1
         else:
             skipped += 1
+            gap = True
         if (visited & 4095) == 0:
             bar.total = max(bar.total, n)
             bar.update(n)
@@ -207,7 +214,8 @@ def walk(fd: int, hdr: Header, size: int, ref: PageInfo, kind: str,
     bar.total = n
     bar.update(n)
     bar.close()
-    return PageIndex(out[:n].copy(), kind, chain_broken=broken, skipped=skipped, method="walk")
+    return PageIndex(out[:n].copy(), kind, chain_broken=broken, skipped=skipped, method="walk",
+                     runs=tuple(runs))
 
 
 def _paths(fingerprint: str) -> tuple[Path, Path]:
@@ -228,8 +236,9 @@ def load(fingerprint: str, kind: str) -> PageIndex | None:
     if (meta.get("version") != INDEX_VERSION or meta.get("kind") != kind
             or offsets.dtype != np.int64 or offsets.ndim != 1 or len(offsets) != meta.get("frames")):
         return None
+    runs = tuple(int(r) for r in meta.get("runs", [0]))
     return PageIndex(offsets, kind, bool(meta.get("chain_broken")), int(meta.get("skipped", 0)),
-                     method="cache")
+                     method="cache", runs=runs)
 
 
 def save(fingerprint: str, index: PageIndex) -> Path | None:
@@ -240,7 +249,7 @@ def save(fingerprint: str, index: PageIndex) -> Path | None:
         np.save(tmp, index.offsets)
         tmp.replace(npy)
         meta = {"version": INDEX_VERSION, "kind": index.kind, "frames": int(len(index.offsets)),
-                "chain_broken": index.chain_broken, "skipped": index.skipped,
+                "chain_broken": index.chain_broken, "skipped": index.skipped, "runs": list(index.runs),
                 "built_by": index.method}
         meta_path.write_text(json.dumps(meta))
     except OSError:

@@ -110,10 +110,28 @@ def _declared_frames(meta: dict, samples: int) -> tuple[int | None, bool, str]:
         try:
             shape = json.loads(meta["shaped"])["shape"]
             lead = shape[:-3] if samples > 1 else shape[:-2]
-            return int(np.prod(lead)) if lead else 1, True, "TIFF"
+            return int(np.prod(lead)) if lead else 1, False, "TIFF"  # more series may follow
         except (ValueError, KeyError, TypeError):
             pass
     return None, False, "TIFF"
+
+
+def _choose_run(path: Path, offsets: np.ndarray, runs: tuple[int, ...], series: int | None,
+                notices: list[str]) -> tuple[np.ndarray, int]:
+    """The frames of one run of same-sized pages (other pages between runs): the longest, or --series."""
+    bounds = [*runs, len(offsets)]
+    lengths = [b - a for a, b in zip(bounds[:-1], bounds[1:], strict=True)]
+    if series is None:
+        k = int(np.argmax(lengths))
+        listing = "; ".join(f"{i}: {m} frames" for i, m in enumerate(lengths[:12]))
+        more = f"; ... {len(lengths)} in all" if len(lengths) > 12 else ""
+        notices.append(f"{len(lengths)} runs of pages of this size, separated by other pages "
+                       f"({listing}{more}): reading run {k}, the longest (--series chooses another)")
+    elif not 0 <= series < len(lengths):
+        raise BadInput(f"{path}: --series {series} outside 0..{len(lengths) - 1}")
+    else:
+        k = series
+    return offsets[bounds[k]:bounds[k + 1]], k
 
 
 def _reference(fd: int, hdr, size: int, ifd0, info0):
@@ -197,14 +215,12 @@ def _open(path: Path, fd: int, size: int, fingerprint: str, show_progress: bool,
         except Exception:  # noqa: BLE001 - unreadable XML: the pages alone decide
             ome = None
         planes = ome_planes(ome, geo.height, geo.width, geo.samples, series, path) if ome else None
-    if series is not None and (planes is None or planes.series is None):
-        raise BadInput(f"{path}: --series: this TIFF holds one image series")
     if (channel is not None or z is not None) and planes is None:
         raise BadInput(f"{path}: --channel/--z: this TIFF holds no channels or z-planes")
     if first_page:
         notices.append(f"{first_page} page(s) of another size before the movie left out")
 
-    offsets = None
+    offsets, series_run = None, None
     if info0.plain and contiguous and declared and declared > 1 and not first_page:
         first = info0.data_offset
         ifd1 = read_ifd(fd, hdr, ifd0.next, size) if ifd0.next else None
@@ -226,10 +242,12 @@ def _open(path: Path, fd: int, size: int, fingerprint: str, show_progress: bool,
             offsets = info0.data_offset + np.arange(whole, dtype=np.int64) * frame_bytes
             notices.append(f"the page directories after the pixels are cut off: {whole} whole "
                            "frames read as one contiguous run after the first page")
+        if planes is None and len(index.runs) > 1:
+            offsets, series_run = _choose_run(path, offsets, index.runs, series, notices)
         n = len(offsets)
         truncated = index.chain_broken or bool(declared and n < declared)
         if index.skipped > first_page:
-            notices.append(f"{index.skipped} pages of another size or pixel type left out")
+            notices.append(f"{index.skipped} page(s) of another size or pixel type left out")
         how = {"stride": "offsets from a constant page stride", "walk": "offsets from an IFD walk",
                "cache": "cached frame index"}[index.method]
         steps = np.diff(offsets)
@@ -238,7 +256,11 @@ def _open(path: Path, fd: int, size: int, fingerprint: str, show_progress: bool,
         comp = ("" if info0.plain else f", compressed (TIFF compression {geo.compression})"
                 if geo.compression != 1 else ", decoded page by page")
         layout = f"{kind} {flavour}{big}{comp}, {n} pages, {how}"
+    if series is not None and (planes is None or planes.series is None) and series_run is None:
+        raise BadInput(f"{path}: --series: this TIFF holds one image series")
     axes, picked, timing_planes = "TYX" + ("S" if rgb else ""), {}, (0, 0, 0)
+    if series_run is not None:
+        picked["series"] = series_run
     if planes is not None:
         offsets, picked = choose(planes, offsets, z, channel, path, notices)
         declared, n, axes = planes.sizes["T"], len(offsets), planes.axes + ("S" if rgb else "")
