@@ -168,3 +168,18 @@ def test_runs_of_same_sized_pages_longest_first(tmp_path, capsys, contiguous):
         np.testing.assert_array_equal(m.block(0, 60), frames[10:])
     with open_movie(p, series=0) as m:
         np.testing.assert_array_equal(m.block(0, 10), frames[:10])
+
+
+def test_each_plane_is_its_own_movie_for_caches_and_sessions(tmp_path, capsys):
+    p = tmp_path / "hs.tif"
+    tifffile.imwrite(p, hyperstack()[:20], imagej=True, metadata={"axes": "TZCYX"})
+    prints = {open_movie(p, z=zz, channel=cc).fingerprint for zz in range(Z) for cc in range(C)}
+    assert len(prints) == Z * C
+    assert open_movie(p).fingerprint == open_movie(p, z=0, channel=0).fingerprint
+    out = tmp_path / "c.csv"
+    assert main(["scan", str(p), "--fps", "100", "--z", "1", "-o", str(out)]) == 0
+    capsys.readouterr()
+    assert main(["scan", str(p), "--fps", "100", "--z", "2", "-o", str(out)]) == 0
+    assert "reused" not in capsys.readouterr().out  # z 2 was never scanned: not z 1's result
+    assert main(["scan", str(p), "--fps", "100", "--z", "1", "-o", str(out)]) == 0
+    assert "reused" in capsys.readouterr().out

@@ -178,6 +178,8 @@ def open_zarr(path: Path, dataset: str | None = None, axes: str | None = None,
         timing = (attribute_timing([(f"array {key}", arr.attrs), ("store", getattr(root, "attrs", {}))])
                   or time_array_timing(siblings, data.shape[0]) or Timing())
         kind = "Zarr array"
+        if key != "/":
+            selection["dataset"] = key
     shape, rgb, more = frames_layout(tuple(data.shape), path, f"array {key}")
     movie = DatasetMovie(data, path, layout=f"{kind} {key}, {shape[0]} frames, stored as {stored}",
                          rgb=rgb, timing=timing, fingerprint=fingerprint_zarr(path),

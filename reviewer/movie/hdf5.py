@@ -94,5 +94,5 @@ def _open(h5py, f, path: Path, fingerprint: str, dataset: str | None, axes: str 
     layout = f"HDF5 dataset {key}, {shape[0]} frames, stored as {stored_axes} {tuple(ds.shape)}"
     movie = DatasetMovie(data, path, layout=layout, rgb=rgb, timing=timing, fingerprint=fingerprint,
                          notices=notices, closer=f.close)
-    movie.axes = stored_axes
+    movie.axes, movie.selection = stored_axes, {"dataset": key}
     return movie

@@ -196,5 +196,5 @@ def open_npz(path: Path, fingerprint: str, dataset: str | None = None) -> Movie:
         notices.append(f"array {key} is compressed: loaded into memory ({data.nbytes / 2**20:.1f} MiB)")
         movie = DatasetMovie(data, path, layout=f"NumPy .npz array {key} (compressed), "
                              f"{shape[0]} frames", rgb=rgb, fingerprint=fingerprint, notices=notices)
-    movie.selection = {"dataset": key} if len(members) > 1 else {}
+    movie.selection = {"dataset": key}
     return movie

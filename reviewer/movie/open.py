@@ -5,6 +5,8 @@ Built-in readers first; then readers that installed packages register in the ent
 
 from __future__ import annotations
 
+import hashlib
+import json
 import os
 import struct
 from dataclasses import dataclass, fields
@@ -145,6 +147,12 @@ def open_movie(path: str | os.PathLike, fps: float | None = None, *, show_progre
     except (OSError, ValueError, struct.error, OverflowError, MemoryError) as exc:
         text = str(exc).splitlines()[0][:100] if str(exc) else exc.__class__.__name__
         raise BadInput(f"{p}: unreadable movie ({text})") from exc
+    if movie.fingerprint and (movie.selection or movie.axes not in ("TYX", "TYXS")):
+        # one file, several movies (planes, series, datasets, axis orders): each its own identity,
+        # so that scans, indexes and sessions of one are never taken for another's
+        chosen = json.dumps({"selection": movie.selection, "axes": movie.axes}, sort_keys=True)
+        movie.fingerprint = hashlib.blake2b(f"{movie.fingerprint};{chosen}".encode(),
+                                            digest_size=12).hexdigest()
     try:
         movie.timing = resolve(movie.path, movie.n_frames, movie.timing, fps, movie.notices)
     except BadInput:
