@@ -183,3 +183,20 @@ def test_each_plane_is_its_own_movie_for_caches_and_sessions(tmp_path, capsys):
     assert "reused" not in capsys.readouterr().out  # z 2 was never scanned: not z 1's result
     assert main(["scan", str(p), "--fps", "100", "--z", "1", "-o", str(out)]) == 0
     assert "reused" in capsys.readouterr().out
+
+
+@pytest.mark.parametrize("flavour", ["imagej", "ome"])
+def test_stack_without_a_time_axis_reads_its_planes_as_frames(tmp_path, flavour):
+    frames = hyperstack()[:, 0, 0]
+    p = tmp_path / "plain.tif"
+    # no axes given: tifffile stores the stack as ImageJ channels / OME SizeC (from memory of its
+    # defaults; the test reads back what it wrote either way)
+    tifffile.imwrite(p, frames, **{flavour: True})
+    with open_movie(p) as m:
+        assert m.n_frames == T and any("no time axis" in n for n in m.notices)
+        np.testing.assert_array_equal(m.block(0, T), frames)
+    z_stack = tmp_path / "z.tif"  # a time series saved as z-slices
+    tifffile.imwrite(z_stack, frames[:20], imagej=True, metadata={"axes": "ZYX"})
+    with open_movie(z_stack) as m:
+        assert m.n_frames == 20 and any("20 slices are read as frames" in n for n in m.notices)
+        np.testing.assert_array_equal(m.block(0, 20), frames[:20])

@@ -43,6 +43,23 @@ class Planes:
         return self.start + out
 
 
+def _time_from_stack_axis(planes: Planes, labels: dict[str, str]) -> Planes:
+    """With no time axis stored (T = 1), the slowest of Z and C that has more than one plane is
+    read as time: tifffile stores a plain 3-D stack as ImageJ channels or OME C, and many programs
+    store a time series as z-slices (common practice, no source)."""
+    if planes.sizes["T"] > 1:
+        return planes
+    slowest = [a for a in reversed(planes.fastest_first) if a in "ZC" and planes.sizes[a] > 1]
+    if not slowest:
+        return planes
+    axis = slowest[0]
+    planes.sizes["T"], planes.sizes[axis] = planes.sizes[axis], 1
+    planes.fastest_first = planes.fastest_first.translate(str.maketrans({axis: "T", "T": axis}))
+    planes.notes.append(f"no time axis stored: the {planes.sizes['T']} {labels[axis]} are read as "
+                        "frames")
+    return planes
+
+
 def imagej_planes(md: dict | None) -> Planes | None:
     if not md:
         return None
@@ -55,7 +72,7 @@ def imagej_planes(md: dict | None) -> Planes | None:
         return None
     if sizes["T"] == 1 and md.get("images") and sizes["Z"] * sizes["C"] < int(md["images"]):
         sizes["T"] = int(md["images"]) // (sizes["Z"] * sizes["C"])
-    return Planes(sizes, "CZT")
+    return _time_from_stack_axis(Planes(sizes, "CZT"), {"Z": "slices", "C": "channels"})
 
 
 def _images(ome: dict) -> list[dict]:
@@ -99,7 +116,8 @@ def ome_planes(ome: dict, height: int, width: int, samples: int, series: int | N
         chosen = max(same, key=lambda r: r[1]["T"] * r[1]["Z"] * r[1]["C"])
     k, sizes, fastest, _ = chosen
     start = sum(r[1]["T"] * r[1]["Z"] * r[1]["C"] for r in rows[:k] if r[3])
-    planes = Planes(sizes, fastest, start, series=k, series_count=len(rows))
+    planes = _time_from_stack_axis(Planes(sizes, fastest, start, series=k, series_count=len(rows)),
+                                   {"Z": "z-planes", "C": "channels"})
     if len(rows) > 1 and series is None:
         planes.notes.append(f"{len(rows)} image series ({'; '.join(listing)}): reading series {k}, "
                             "the one with most frames (--series chooses another)")
