@@ -164,16 +164,18 @@ def test_zarr_nested_group(tmp_path, capsys):
         np.testing.assert_array_equal(m.block(50, 70), movie[50:70])
 
 
-def test_ome_ngff_level_0_with_time_scale_and_channels(tmp_path, capsys):
+@pytest.mark.parametrize("version", ["0.4", "0.5"])
+def test_ome_ngff_level_0_with_time_scale_and_channels(tmp_path, capsys, version):
     rng = np.random.default_rng(4)
     data = rng.integers(0, 1000, (9, 2, 16, 20), dtype=np.uint16)  # t, c, y, x
     p = tmp_path / "image.ome.zarr"
-    root = zarr.open_group(str(p), mode="w", zarr_format=2)
+    root = zarr.open_group(str(p), mode="w", zarr_format=2 if version == "0.4" else 3)
     root.create_array("0", data=data, chunks=(1, 1, 16, 20))
     root.create_array("1", data=data[:, :, ::2, ::2], chunks=(1, 1, 8, 10))
-    # multiscales metadata as OME-NGFF 0.4 specifies it (ngff.openmicroscopy.org/0.4)
-    root.attrs["multiscales"] = [{
-        "version": "0.4",
+    # multiscales metadata as OME-NGFF specifies it (ngff.openmicroscopy.org/0.4 and /0.5: in 0.5
+    # the same object sits under the group attribute "ome", on Zarr v3)
+    multiscales = [{
+        "version": version,
         "axes": [{"name": "t", "type": "time", "unit": "millisecond"},
                  {"name": "c", "type": "channel"},
                  {"name": "y", "type": "space", "unit": "micrometer"},
@@ -182,6 +184,10 @@ def test_ome_ngff_level_0_with_time_scale_and_channels(tmp_path, capsys):
                          {"type": "scale", "scale": [5.0, 1.0, 0.1, 0.1]}]},
                      {"path": "1", "coordinateTransformations": [
                          {"type": "scale", "scale": [5.0, 1.0, 0.2, 0.2]}]}]}]
+    if version == "0.4":
+        root.attrs["multiscales"] = multiscales
+    else:
+        root.attrs["ome"] = {"version": "0.5", "multiscales": multiscales}
     d = info_json(capsys, p)
     assert (d["frames"], d["height"], d["width"], d["fps"]) == (9, 16, 20, 200.0)
     assert d["axes"] == "TCYX" and d["selection"] == {"channel": 0}
