@@ -17,7 +17,7 @@ from pathlib import Path
 import numpy as np
 
 from reviewer.errors import BadInput
-from reviewer.movie.arrays import attribute_timing, frames_view, pick, time_array_timing
+from reviewer.movie.arrays import AxesView, attribute_timing, frames_view, pick, time_array_timing
 from reviewer.movie.base import Movie, Timing, companions, fingerprint_file
 from reviewer.movie.npy import DatasetMovie, frames_layout
 from reviewer.movie.timing import _seconds
@@ -100,15 +100,12 @@ def _ngff(root, path: Path, ms: dict, channel: int | None, z: int | None, select
         pos = _choose(path, name, int(size), wanted, notices)
         selection[{"c": "channel", "z": "z"}.get(name, name)] = pos
         index.append(pos)
-    from reviewer.movie.arrays import AxesView
-
     kept = [n for n in names if n in ("t", "y", "x")]
     if "t" not in kept:
         view = Lifted(_Indexed(arr, tuple(index)))
         notices.append("OME-NGFF image without a time axis: read as a 1-frame movie")
     else:
-        t_at = [i for i, n in enumerate(names) if n == "t"][0]
-        index[t_at] = None
+        index[names.index("t")] = None
         order = (kept.index("t"), kept.index("y"), kept.index("x"))
         view = AxesView(arr, tuple(index), order)
     timing = Timing()

@@ -14,7 +14,13 @@ import numpy as np
 from reviewer.errors import BadInput
 from reviewer.movie.base import Movie, Timing
 from reviewer.movie.offsets import OffsetMovie
-from reviewer.movie.pixels import RGB_NOTICE, frame_size_problem, output_dtype, to_frames
+from reviewer.movie.pixels import (
+    RGB_NOTICE,
+    frame_limit,
+    frame_size_problem,
+    output_dtype,
+    to_frames,
+)
 
 SINGLE_NOTICE = "a single 2-D image: read as a 1-frame movie"
 
@@ -191,6 +197,10 @@ def open_npz(path: Path, fingerprint: str, dataset: str | None = None) -> Movie:
                             layout=f"NumPy .npz array {key}, {shape[0]} frames, read by offset",
                             notices=notices + ([note] if note else []))
     else:
+        total = math.prod(shape) * dtype.itemsize
+        if total > frame_limit():
+            raise BadInput(f"{path}: array {key} is compressed and would take {total / 2**30:.1f} GiB "
+                           "in memory; save it with np.savez (uncompressed) or as .npy to read it")
         with np.load(path, allow_pickle=False) as z:
             data = z[key].reshape(shape)
         notices.append(f"array {key} is compressed: loaded into memory ({data.nbytes / 2**20:.1f} MiB)")
