@@ -120,3 +120,43 @@ def test_fuzzed_raw_descriptors(tmp_path):
         (tmp_path / "m.raw.json").write_text(json.dumps(desc))
         results.add(_open_and_read(tmp_path / "m.raw"))
     assert results == {"ok", "bad"}
+
+
+def _container(kind, path, frames):
+    """The same small movie written by each container's own library."""
+    if kind == "hdf5":
+        h5py = pytest.importorskip("h5py")
+        with h5py.File(path, "w") as f:
+            f["m"] = frames
+            f["m"].attrs["fps"] = 10.0
+    elif kind == "mrc":
+        mrcfile = pytest.importorskip("mrcfile")
+        with mrcfile.new(path) as m:
+            m.set_data(frames)
+    elif kind == "npz":
+        np.savez(path, m=frames)
+    else:
+        av = pytest.importorskip("av")
+        with av.open(str(path), "w") as c:
+            s = c.add_stream("ffv1", rate=10)
+            s.width, s.height, s.pix_fmt = frames.shape[2], frames.shape[1], "gray"
+            for f in frames.astype(np.uint8):
+                for packet in s.encode(av.VideoFrame.from_ndarray(f, format="gray")):
+                    c.mux(packet)
+            for packet in s.encode():
+                c.mux(packet)
+
+
+@pytest.mark.parametrize(("kind", "name", "head"), [("hdf5", "m.h5", 2048), ("mrc", "m.mrc", 1024),
+                                                    ("npz", "m.npz", 400), ("video", "m.mkv", 600)])
+def test_fuzzed_container_headers(tmp_path, kind, name, head):
+    rng = np.random.default_rng(SEED + 3)
+    src = tmp_path / ("src_" + name)
+    _container(kind, src, rng.integers(0, 200, (6, 10, 12), dtype=np.uint16))
+    raw = src.read_bytes()
+    results = set()
+    for k in range(CASES // 3):
+        p = tmp_path / f"f{k}_{name}"
+        p.write_bytes(_mutate(raw, (0, head), rng))
+        results.add(_open_and_read(p))
+    assert "bad" in results  # damage was met, and every case was "ok" or one BadInput line

@@ -51,9 +51,13 @@ def open_hdf5(path: Path, fingerprint: str, dataset: str | None = None,
         raise BadInput(f"{path}: not a readable HDF5 file ({str(exc)[:80]})") from None
     try:
         return _open(h5py, f, path, fingerprint, dataset, axes, plugins)
-    except BaseException:
+    except BadInput:
         f.close()
         raise
+    except Exception as exc:  # noqa: BLE001 - HDF5 reports damage as RuntimeError, KeyError, ...
+        f.close()
+        text = str(exc).strip("'\"").splitlines()[0][:100] if str(exc) else exc.__class__.__name__
+        raise BadInput(f"{path}: damaged HDF5 file ({text})") from None
 
 
 def _open(h5py, f, path: Path, fingerprint: str, dataset: str | None, axes: str | None,

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import gzip
 import threading
+import warnings
 from pathlib import Path
 
 import numpy as np
@@ -64,7 +65,10 @@ class GzipMovie(Movie):
 def open_mrc(path: Path, fingerprint: str) -> Movie:
     mrcfile = need_module("mrcfile", path, "mrc", "MRC files")
     try:
-        with mrcfile.open(path, header_only=True, permissive=True) as mrc:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # permissive mode warns; the checks below decide
+            mrc = mrcfile.open(path, header_only=True, permissive=True)
+        with mrc:
             h = mrc.header
             nx, ny, nz = int(h.nx), int(h.ny), int(h.nz)
             nsymbt, mode, ispg = int(h.nsymbt), int(h.mode), int(h.ispg)

@@ -147,6 +147,11 @@ def open_movie(path: str | os.PathLike, fps: float | None = None, *, show_progre
     except (OSError, ValueError, struct.error, OverflowError, MemoryError) as exc:
         text = str(exc).splitlines()[0][:100] if str(exc) else exc.__class__.__name__
         raise BadInput(f"{p}: unreadable movie ({text})") from exc
+    except Exception as exc:  # noqa: BLE001 - the libraries under the readers (h5py, PyAV, zarr,
+        # mrcfile, plug-ins) raise RuntimeError, KeyError, ... on damaged files: still one line
+        text = str(exc).splitlines()[0][:100] if str(exc) else ""
+        raise BadInput(f"{p}: unreadable or damaged movie ({exc.__class__.__name__}"
+                       f"{': ' + text if text else ''})") from exc
     if movie.fingerprint and (movie.selection or movie.axes not in ("TYX", "TYXS")):
         # one file, several movies (planes, series, datasets, axis orders): each its own identity,
         # so that scans, indexes and sessions of one are never taken for another's

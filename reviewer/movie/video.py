@@ -124,7 +124,9 @@ def open_video(path: Path, fingerprint: str) -> Movie:
             stream = container.streams.video[0]
             codec = stream.codec_context.name
             height, width = int(stream.codec_context.height), int(stream.codec_context.width)
-            pix = stream.codec_context.format.name if stream.codec_context.format else "yuv420p"
+            if stream.codec_context.format is None or not (height > 0 and width > 0):
+                raise BadInput(f"{path}: the video stream has no readable frame format")
+            pix = stream.codec_context.format.name
             time_base = float(stream.time_base) if stream.time_base else None
             rate = float(stream.average_rate) if stream.average_rate else None
     except av.error.FFmpegError as exc:
