@@ -75,6 +75,17 @@ def pick(arrays: Mapping[str, object], path: Path, wanted: str | None, what: str
     return next(iter(best.items()))
 
 
+def holdings(arrays: Mapping[str, object], key: str, what: str) -> str | None:
+    """A notice listing the other image arrays of the container, when there are any."""
+    others = [(k, tuple(v.shape)) for k, v in arrays.items()
+              if k != key and _numeric(v) and movie_shape(v.shape) is not None]
+    if not others:
+        return None
+    listed = "; ".join(f"{k} {'x'.join(map(str, s))}" for k, s in sorted(others)[:6])
+    more = f"; ... {len(others)} in all" if len(others) > 6 else ""
+    return f"reading {what} {key}; the file also holds {listed}{more} (--dataset chooses another)"
+
+
 def frames_axis(shape: tuple[int, ...], chunks: tuple[int, ...] | None, axes: str | None,
                 notices: list[str], key: str) -> str:
     """'TYX' or 'YXT' for a 3-D shape (see the module rules)."""

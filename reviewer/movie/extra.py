@@ -17,7 +17,14 @@ from pathlib import Path
 import numpy as np
 
 from reviewer.errors import BadInput
-from reviewer.movie.arrays import AxesView, attribute_timing, frames_view, pick, time_array_timing
+from reviewer.movie.arrays import (
+    AxesView,
+    attribute_timing,
+    frames_view,
+    holdings,
+    pick,
+    time_array_timing,
+)
 from reviewer.movie.base import Movie, Timing, companions, fingerprint_file
 from reviewer.movie.npy import DatasetMovie, frames_layout
 from reviewer.movie.timing import _seconds
@@ -165,6 +172,7 @@ def open_zarr(path: Path, dataset: str | None = None, axes: str | None = None,
         else:
             found = _arrays(root)
             key, arr = pick(found, path, dataset, "array")
+            notices += [n for n in [holdings(found, key, "array")] if n]
         try:
             view, stored = frames_view(arr, key, axes, notices)
         except ValueError as exc:

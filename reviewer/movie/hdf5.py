@@ -9,7 +9,13 @@ import importlib
 from pathlib import Path
 
 from reviewer.errors import BadInput
-from reviewer.movie.arrays import attribute_timing, frames_view, pick, time_array_timing
+from reviewer.movie.arrays import (
+    attribute_timing,
+    frames_view,
+    holdings,
+    pick,
+    time_array_timing,
+)
 from reviewer.movie.base import Movie
 from reviewer.movie.extra import Lifted, need_module
 from reviewer.movie.npy import DatasetMovie, frames_layout
@@ -78,7 +84,7 @@ def _open(h5py, f, path: Path, fingerprint: str, dataset: str | None, axes: str 
                "install the optional package hdf5plugin: pip install 'reviewer[hdf5]'")
         raise BadInput(f"{path}: dataset {key} is compressed with {missing}, which is not "
                        f"available; {fix}")
-    notices: list[str] = []
+    notices: list[str] = [n for n in [holdings(found, key, "dataset")] if n]
     try:
         view, stored_axes = frames_view(ds, key, axes, notices)
     except ValueError as exc:

@@ -12,6 +12,7 @@ from pathlib import Path
 import numpy as np
 
 from reviewer.errors import BadInput
+from reviewer.movie.arrays import holdings, pick
 from reviewer.movie.base import Movie, Timing
 from reviewer.movie.offsets import OffsetMovie
 from reviewer.movie.pixels import (
@@ -178,17 +179,18 @@ class _Member:
 def open_npz(path: Path, fingerprint: str, dataset: str | None = None) -> Movie:
     """One array of a NumPy .npz archive (np.savez / np.savez_compressed): the largest 3-D one or
     `dataset`. Stored (uncompressed) members are read at byte offsets; compressed ones are loaded."""
-    from reviewer.movie.arrays import pick
-
     try:
         members = _npz_members(path)
     except (zipfile.BadZipFile, ValueError, OSError, EOFError, struct.error) as exc:
         raise BadInput(f"{path}: not a readable .npz archive ({str(exc).splitlines()[0][:80]})") from None
-    key, member = pick({k: _Member(s, d) for k, (s, d, _) in members.items()}, path, dataset, "array")
+    listed = {k: _Member(s, d) for k, (s, d, _) in members.items()}
+    key, member = pick(listed, path, dataset, "array")
+    also = holdings(listed, key, "array")
     shape, dtype, offset = members[key]
     if dtype.kind not in "iuf":
         raise BadInput(f"{path}: array {key} holds {dtype} values, not pixel values")
     shape, rgb, notices = frames_layout(shape, path, f"array {key}")
+    notices += [also] if also else []
     if offset is not None:
         frame_bytes = math.prod(shape[1:]) * dtype.itemsize
         out, note = (np.dtype(np.float32), None) if rgb else output_dtype(dtype, ".npz")
