@@ -67,13 +67,14 @@ def test_ome_plane_delta_t_per_time_point(tmp_path):
         np.testing.assert_array_equal(m.block(0, 6), data[:, 0, 1])
 
 
-def test_thumbnail_first(tmp_path, capsys):
+@pytest.mark.parametrize("compression", [None, "zlib"])
+def test_thumbnail_first(tmp_path, capsys, compression):
     frames = hyperstack()[:, 0, 0]
     p = tmp_path / "thumb.tif"
     with tifffile.TiffWriter(p) as w:
-        w.write(np.zeros((6, 8), np.uint8))  # a small preview image as page 0
+        w.write(np.zeros((6, 8), np.uint8), compression=compression)  # a small preview as page 0
         for f in frames:
-            w.write(f, contiguous=False)
+            w.write(f, contiguous=False, compression=compression)
     d = info_json(capsys, p)
     assert (d["frames"], d["height"], d["width"], d["dtype"]) == (T, Y, X, "uint16")
     with open_movie(p) as m:

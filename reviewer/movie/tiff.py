@@ -295,7 +295,11 @@ def _open(path: Path, fd: int, size: int, fingerprint: str, show_progress: bool,
                        axes, picked)
     if tif is None:
         raise BadInput(f"{path}: compressed TIFF pages that tifffile cannot open")
-    page_dtype = tif.pages.first.dtype
+    page_dtype = numpy_dtype(geo, "=")
+    if page_dtype is None:  # an unusual pixel type: ask tifffile what the movie's first page holds
+        with quiet_tifffile():
+            tif.filehandle.seek(ifd0.offset)
+            page_dtype = tifffile.TiffPage(tif, index=first_page).dtype
     try:
         out_dtype, note = output_dtype(page_dtype, "TIFF") if not rgb else (np.dtype(np.float32), None)
     except (ValueError, TypeError) as exc:
