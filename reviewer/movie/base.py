@@ -53,11 +53,11 @@ SPREAD_BYTES = 64 << 10
 TIMES_SUFFIX = ".times.csv"  # per-frame times beside a movie: <movie>.times.csv (see timing.py)
 
 
-def _hash_content(h, path: Path, chunk: int) -> None:
+def _hash_content(h, path: Path, chunk: int, label: str = "") -> None:
     """Size, mtime, the first and last `chunk` bytes (the whole file up to 2 chunks), blocks spread
     evenly between them and one at the exact centre."""
     st = path.stat()
-    h.update(f"{path.name}:{st.st_size}:{st.st_mtime_ns};".encode())
+    h.update(f"{label}:{st.st_size}:{st.st_mtime_ns};".encode())
     size = st.st_size
     with open(path, "rb") as f:
         h.update(f.read(chunk))
@@ -83,16 +83,16 @@ def companions(path: str | os.PathLike) -> list[Path]:
 def fingerprint_file(path: str | os.PathLike, chunk: int = 1 << 20,
                      also: tuple[str | os.PathLike, ...] = ()) -> str:
     """Cheap stable identity of a movie file: size, mtime and hashes of its first and last MiB and of
-    blocks spread through its middle, plus the whole of each small companion file that decides the
-    result (`also`, e.g. a raw descriptor, and the ``<movie>.times.csv`` when there is one)."""
+    blocks spread through its middle, plus the same of each companion file that decides the result
+    (`also`, e.g. a raw descriptor, and the ``<movie>.times.csv`` when there is one; files up to
+    2 MiB are hashed whole). The movie's name is not part of it: caches follow a renamed file."""
     p = Path(path)
     h = hashlib.blake2b(digest_size=12)
     h.update(f"v{FINGERPRINT_VERSION};".encode())
     _hash_content(h, p, chunk)
     for extra in (*map(Path, also), *companions(p)):
-        h.update(b"+")
         try:
-            _hash_content(h, extra, chunk)
+            _hash_content(h, extra, chunk, "+" + extra.name[len(p.name):])
         except OSError:
             h.update(f"{extra.name}: unreadable;".encode())
     return h.hexdigest()
