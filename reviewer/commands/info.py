@@ -41,7 +41,8 @@ def text_lines(d: dict) -> list[str]:
             f"size      {_size(d['file_size'])}",
             f"layout    {d['layout']}",
             f"axes      {d.get('axes', 'TYX')}" + "".join(
-                f", {k} {v}" for k, v in (d.get("selection") or {}).items())]
+                f", {k} {v}" for k, v in (d.get("selection") or {}).items())] + (
+            [f"pixel     {d['pixel_size_nm']:.6g} nm"] if d.get("pixel_size_nm") else [])
 
 
 def run(args: argparse.Namespace) -> int:

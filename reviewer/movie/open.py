@@ -97,7 +97,7 @@ def _open_file(p: Path, show_progress: bool, choice: Choice) -> Movie:
     if kind == "npy":
         return open_npy(p, fingerprint_file(p))
     if kind == "video":
-        return open_video(p, fingerprint_file(p))
+        return open_video(p, fingerprint_file(p), show_progress)
     if kind == "npz":
         return open_npz(p, fingerprint_file(p), choice.dataset)
     if kind == "mrc":

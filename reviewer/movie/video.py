@@ -19,10 +19,12 @@ from reviewer.errors import BadInput
 from reviewer.movie.base import Movie, Timing
 from reviewer.movie.extra import need_module
 from reviewer.paths import cache_dir
+from reviewer.progress import Progress
 
 VIDEO_SUFFIXES = (".mp4", ".m4v", ".avi", ".mkv", ".mov", ".webm", ".mpg", ".mpeg", ".wmv")
 LOSSLESS = {"ffv1", "huffyuv", "ffvhuff", "png", "rawvideo", "utvideo", "magicyuv", "qtrle", "v210"}
 INDEX_VERSION = 1
+PROGRESS_MIN_BYTES = 256 << 20  # smaller files are indexed without a progress bar
 
 
 def lossy_notice(codec: str) -> str:
@@ -30,21 +32,32 @@ def lossy_notice(codec: str) -> str:
             "counts are not Poisson, so detection thresholds are only approximate")
 
 
-def _build_index(av, path: Path, stream_index: int) -> tuple[np.ndarray, np.ndarray]:
+def _build_index(av, path: Path, stream_index: int,
+                 show_progress: bool) -> tuple[np.ndarray, np.ndarray]:
     """(sorted pts of every frame, pts of every keyframe) from one pass over the packets."""
     pts, keys = [], []
     with av.open(str(path)) as container:
         stream = container.streams.video[stream_index]
+        big = path.stat().st_size > PROGRESS_MIN_BYTES
+        bar = Progress(int(stream.frames or 0), label="video frames indexed",
+                       enabled=show_progress and big)
         for packet in container.demux(stream):
             if packet.pts is None or packet.size == 0:
                 continue
             pts.append(packet.pts)
             if packet.is_keyframe:
                 keys.append(packet.pts)
+            if (len(pts) & 1023) == 0:
+                bar.total = max(bar.total, len(pts))
+                bar.update(len(pts))
+        bar.total = len(pts)
+        bar.update(len(pts))
+        bar.close()
     return np.sort(np.array(pts, np.int64)), np.sort(np.array(keys, np.int64))
 
 
-def _index(av, path: Path, stream_index: int, fingerprint: str) -> tuple[np.ndarray, np.ndarray, str]:
+def _index(av, path: Path, stream_index: int, fingerprint: str,
+           show_progress: bool) -> tuple[np.ndarray, np.ndarray, str]:
     folder = cache_dir(fingerprint) if fingerprint else None
     npz = folder / "video_index.npz" if folder else None
     if npz is not None and npz.is_file():
@@ -54,7 +67,7 @@ def _index(av, path: Path, stream_index: int, fingerprint: str) -> tuple[np.ndar
                     return z["pts"], z["keys"], "cached frame index"
         except (OSError, ValueError, KeyError):
             pass
-    pts, keys = _build_index(av, path, stream_index)
+    pts, keys = _build_index(av, path, stream_index, show_progress)
     if npz is not None:
         try:
             tmp = npz.with_suffix(".tmp.npz")
@@ -115,7 +128,7 @@ class VideoMovie(Movie):
         self._container.close()
 
 
-def open_video(path: Path, fingerprint: str) -> Movie:
+def open_video(path: Path, fingerprint: str, show_progress: bool = True) -> Movie:
     av = need_module("av", path, "video", "video files")
     try:
         with av.open(str(path)) as container:
@@ -134,7 +147,7 @@ def open_video(path: Path, fingerprint: str) -> Movie:
     deep = any(t in pix for t in ("10", "12", "16")) and "gray8" not in pix
     gray, dtype = ("gray16le", np.dtype(np.uint16)) if deep else ("gray", np.dtype(np.uint8))
     try:
-        pts, keys, how = _index(av, path, 0, fingerprint)
+        pts, keys, how = _index(av, path, 0, fingerprint, show_progress)
     except av.error.FFmpegError as exc:
         raise BadInput(f"{path}: the video packets cannot be read ({str(exc)[:80]})") from None
     if len(pts) == 0:
