@@ -196,3 +196,17 @@ def test_ome_ngff_level_0_with_time_scale_and_channels(tmp_path, capsys, version
         np.testing.assert_array_equal(m.block(0, 9), data[:, 1])
     with pytest.raises(BadInput, match="--channel 2 outside 0..1"):
         open_movie(p, channel=2)
+
+
+def test_hdf5_time_from_a_dimension_scale(tmp_path):
+    times = np.r_[0.0, 0.5, 1.5, 2.0, 3.0]
+    p = tmp_path / "scaled.h5"
+    with h5py.File(p, "w") as f:  # h5py's dimension scales (HDF5 Dimension Scale specification)
+        ds = f.create_dataset("stack", data=np.ones((8, 8, 5), np.uint16), chunks=(8, 8, 1))
+        f["acquired_at"] = times
+        f["acquired_at"].make_scale("time")
+        ds.dims[2].attach_scale(f["acquired_at"])
+    with open_movie(p) as m:
+        assert m.n_frames == 5 and m.axes == "YXT"
+        np.testing.assert_allclose(m.timing.times_s, times)
+        assert "dimension scale" in m.timing.source

@@ -196,11 +196,14 @@ def attribute_timing(attr_sets: list[tuple[str, Mapping]]) -> Timing | None:
     return None
 
 
-def time_array_timing(siblings: Mapping[str, object], n_frames: int) -> Timing | None:
-    """Timing from a 1-D array beside the movie named like a time axis, one increasing value a frame."""
+def time_array_timing(siblings: Mapping[str, object], n_frames: int,
+                      any_name: bool = False) -> Timing | None:
+    """Timing from a 1-D array beside the movie named like a time axis (or, with `any_name`, any
+    array given, e.g. the dimension scale of the time axis), one increasing value a frame."""
     for key, arr in siblings.items():
         name = key.rsplit("/", 1)[-1].lower()
-        if name not in TIME_NAMES or len(getattr(arr, "shape", ())) != 1 or not _numeric(arr):
+        if not (any_name or name in TIME_NAMES) or len(getattr(arr, "shape", ())) != 1 \
+                or not _numeric(arr):
             continue
         if arr.shape[0] != n_frames:
             continue

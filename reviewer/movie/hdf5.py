@@ -99,7 +99,11 @@ def _open(h5py, f, path: Path, fingerprint: str, dataset: str | None, axes: str 
     groups.append(("file", f.attrs))
     siblings = {k: v for k, v in found.items() if k != key and k.rsplit("/", 1)[0:-1] ==
                 key.rsplit("/", 1)[0:-1]}
+    scales = {}
+    if "T" in stored_axes:  # HDF5 dimension scales attached to the time axis
+        scales = {f"{s.name} (dimension scale)": s for s in ds.dims[stored_axes.index("T")].values()}
     timing = (attribute_timing([(f"dataset {key}", ds.attrs), *groups])
+              or time_array_timing(scales, shape[0], any_name=True)
               or time_array_timing(siblings, shape[0]))
     layout = f"HDF5 dataset {key}, {shape[0]} frames, stored as {stored_axes} {tuple(ds.shape)}"
     movie = DatasetMovie(data, path, layout=layout, rgb=rgb, timing=timing, fingerprint=fingerprint,
