@@ -27,7 +27,7 @@ from reviewer.movie.video import VIDEO_SUFFIXES, open_video
 
 TIFF_SUFFIXES = (".tif", ".tiff", ".btf", ".tf8", ".tf2")
 KNOWN = ("TIFF, .npy, .npz, .png, HDF5, MRC, video, raw + .json descriptor, a Zarr store or a "
-         "folder of PNG/TIFF frames")
+         "folder of PNG/TIFF frames; many more with the optional extra 'formats' (RosettaSciIO)")
 
 
 @dataclass(frozen=True)
