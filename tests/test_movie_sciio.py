@@ -63,3 +63,19 @@ def test_rosettasciio_written_stack(tmp_path, capsys, suffix, module, dtype):
     assert main(["scan", str(p), "-o", str(out)]) == 0
     with open(out, newline="") as f:
         assert any(abs(int(r["frame"]) - STEP) <= 1 for r in csv.DictReader(f))
+
+
+def test_animated_gif_written_by_pillow(tmp_path):
+    from PIL import Image, ImageSequence
+
+    frames = (step_movie()[:12] * 3).clip(0, 255).astype(np.uint8)
+    p = tmp_path / "anim.gif"
+    images = [Image.fromarray(f) for f in frames]
+    images[0].save(p, save_all=True, append_images=images[1:], duration=40)
+    with Image.open(p) as im:  # Pillow's own decoding, as RGB, is the reference
+        rgb = np.stack([np.asarray(f.convert("RGB")) for f in ImageSequence.Iterator(im)])
+    # ITU-R BT.601 luma weights
+    expect = rgb.astype(np.float32) @ np.array([0.299, 0.587, 0.114], np.float32)
+    with open_movie(p) as m:
+        assert (m.n_frames, m.shape) == (12, (H, W))
+        np.testing.assert_allclose(m.block(0, 12), expect, rtol=1e-5, atol=1e-3)

@@ -15,11 +15,14 @@ import importlib
 import logging
 from pathlib import Path
 
+import numpy as np
+
 from reviewer.errors import BadInput
 from reviewer.movie.arrays import AxesView
 from reviewer.movie.base import Movie, Timing, fingerprint_file
 from reviewer.movie.extra import Lifted
 from reviewer.movie.npy import DatasetMovie, frames_layout
+from reviewer.movie.pixels import frame_limit
 from reviewer.movie.timing import _seconds
 
 NM_PER = {"nm": 1.0, "µm": 1e3, "um": 1e3, "\u03bcm": 1e3, "å": 0.1, "a": 0.1, "angstrom": 0.1,
@@ -61,33 +64,48 @@ def open_with_rsciio(path: Path) -> Movie | None:
     log.setLevel(logging.ERROR)  # e.g. "numba is not installed": not the user's business here
     try:
         reader = importlib.import_module(plugin["api"]).file_reader
-        signals = reader(str(path), lazy=True)
+        try:
+            signals = reader(str(path), lazy=True)
+        except Exception:  # noqa: BLE001 - some plug-ins fail lazily; small files load whole
+            if Path(path).stat().st_size > frame_limit():
+                raise
+            signals = reader(str(path), lazy=False)
     finally:
         log.setLevel(level)
-    images = [s for s in signals if len(getattr(s.get("data"), "shape", ())) in (2, 3)]
+    colour = set()
+    for k, s in enumerate(signals):
+        dtype = getattr(s.get("data"), "dtype", None)
+        if dtype is not None and dtype.names and set(dtype.names) >= {"R", "G", "B"}:
+            # colour stored as a record per pixel (RosettaSciIO's rgb8/rgba8): plain samples last
+            s["data"] = np.stack([np.asarray(s["data"][c]) for c in ("R", "G", "B")], axis=-1)
+            colour.add(k)
+
+    def image_dims(k: int) -> int:
+        return len(getattr(signals[k].get("data"), "shape", ())) - (k in colour)
+
+    images = [k for k in range(len(signals)) if image_dims(k) in (2, 3)]
     if not images:
         shapes = ", ".join(str(tuple(s["data"].shape)) for s in signals)[:100]
         raise BadInput(f"{path}: RosettaSciIO ({plugin['name']}) finds no image stack here ({shapes})")
-    signal = max(images, key=lambda s: (len(s["data"].shape), s["data"].size))
-    data, axes = signal["data"], list(signal.get("axes") or [])
-    if "index_in_array" in (axes[0] if axes else {}):
+    best = max(images, key=lambda k: (image_dims(k), signals[k]["data"].size))
+    data, axes = signals[best]["data"], list(signals[best].get("axes") or [])
+    if axes and "index_in_array" in axes[0]:
         axes.sort(key=lambda a: a["index_in_array"])
     notices = [f"read by RosettaSciIO's {plugin['name']} plug-in"]
-    timing, pixel_nm = Timing(), None
-    if data.ndim == 3:
+    timing, pixel_nm, space = Timing(), None, axes[-2:]
+    if image_dims(best) == 3:
         t = _frame_axis(axes, 3)
-        order = (t, *(k for k in range(3) if k != t))
+        order = (t, *(k for k in range(data.ndim) if k != t))
         view = data if t == 0 else AxesView(data, tuple(None if k == t else slice(None)
-                                                       for k in range(3)), order)
-        if len(axes) == 3:
+                                                       for k in range(data.ndim)), order)
+        if len(axes) >= 3:
             step = _seconds(axes[t].get("scale"), axes[t].get("units") or "")
             if step:
                 timing = Timing(fps=1.0 / step, source=f"{plugin['name']} time axis")
-            space = [a for k, a in enumerate(axes) if k != t]
-        else:
-            space = []
+            space = [a for k, a in enumerate(axes[:3]) if k != t]
     else:
-        view, space = Lifted(data), axes[:2]
+        view = Lifted(data)
+        notices.append("a single 2-D image: read as a 1-frame movie")
     for a in space[-1:]:
         scale = NM_PER.get(str(a.get("units") or "").strip().lower())
         if scale and float(a.get("scale") or 0) > 0:
