@@ -54,6 +54,9 @@ def test_lossless_video_reads_the_written_pixels(tmp_path, capsys):
         np.testing.assert_array_equal(m.block(0, N), frames)
         for i in (97, 3, 119, 0, 64):  # random access, backwards too
             np.testing.assert_array_equal(m.frame(i), frames[i])
+        for i in range(90, 70, -1):  # stepping back one frame at a time (recent frames kept)
+            np.testing.assert_array_equal(m.frame(i), frames[i])
+        np.testing.assert_array_equal(m.block(60, 100), frames[60:100])
     with open_movie(p) as m:
         assert "cached frame index" in m.layout
 

@@ -11,6 +11,7 @@ before it and decoding forward. Sequential reads keep decoding without seeking.
 from __future__ import annotations
 
 import threading
+from collections import OrderedDict
 from pathlib import Path
 
 import numpy as np
@@ -24,7 +25,8 @@ from reviewer.progress import Progress
 VIDEO_SUFFIXES = (".mp4", ".m4v", ".avi", ".mkv", ".mov", ".webm", ".mpg", ".mpeg", ".wmv")
 LOSSLESS = {"ffv1", "huffyuv", "ffvhuff", "png", "rawvideo", "utvideo", "magicyuv", "qtrle", "v210"}
 INDEX_VERSION = 1
-PROGRESS_MIN_BYTES = 256 << 20  # smaller files are indexed without a progress bar
+PROGRESS_MIN_BYTES = 256 << 20
+RECENT_BYTES = 64 << 20  # decoded frames kept for stepping back  # smaller files are indexed without a progress bar
 
 
 def lossy_notice(codec: str) -> str:
@@ -88,7 +90,17 @@ class VideoMovie(Movie):
         self._stream = self._container.streams.video[stream_index]
         self._frames = None  # decoding generator, positioned before frame self._next
         self._next = -1
+        # frames decoded on the way from a keyframe are kept (bounded), so that stepping back one
+        # frame at a time does not decode from the keyframe again each time
+        self._recent: OrderedDict[int, np.ndarray] = OrderedDict()
+        self._keep = max(8, RECENT_BYTES // max(1, shape[0] * shape[1] * np.dtype(dtype).itemsize))
         super().__init__(path=path, n_frames=len(pts), shape=shape, dtype=dtype, **kw)
+
+    def _remember(self, at: int, frame: np.ndarray) -> None:
+        self._recent[at] = frame
+        self._recent.move_to_end(at)
+        while len(self._recent) > self._keep:
+            self._recent.popitem(last=False)
 
     def _seek(self, i: int) -> None:
         k = int(np.searchsorted(self.keys, self.pts[i], "right")) - 1
@@ -106,6 +118,10 @@ class VideoMovie(Movie):
     def _read(self, start: int, stop: int) -> np.ndarray:
         out = np.empty((stop - start, *self.shape), self.dtype)
         with self._lock:
+            if all(i in self._recent for i in range(start, stop)):
+                for i in range(start, stop):
+                    out[i - start] = self._recent[i]
+                return out
             if self._frames is None or self._next != start:
                 self._seek(start)
             i = start
@@ -116,11 +132,13 @@ class VideoMovie(Movie):
                     raise BadInput(f"{self.path}: frame {i} cannot be read: the video ends "
                                    "before it") from None
                 at = self._next - 1
+                pixels = frame.to_ndarray(format=self._gray)
+                self._remember(at, pixels)
                 if at < i:
                     continue  # decoded on the way from the keyframe
                 if at > i:
                     raise BadInput(f"{self.path}: frame {i} cannot be read: the decoder skipped it")
-                out[i - start] = frame.to_ndarray(format=self._gray)
+                out[i - start] = pixels
                 i += 1
         return out
 
