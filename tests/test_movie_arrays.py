@@ -191,6 +191,7 @@ def test_ome_ngff_level_0_with_time_scale_and_channels(tmp_path, capsys, version
     d = info_json(capsys, p)
     assert (d["frames"], d["height"], d["width"], d["fps"]) == (9, 16, 20, 200.0)
     assert d["axes"] == "TCYX" and d["selection"] == {"channel": 0}
+    assert d["pixel_size_nm"] == pytest.approx(100.0)  # 0.1 micrometer
     assert any("2 channels" in n for n in d["notices"])
     with open_movie(p, channel=1) as m:
         np.testing.assert_array_equal(m.block(0, 9), data[:, 1])

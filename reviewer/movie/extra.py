@@ -29,6 +29,10 @@ from reviewer.movie.base import Movie, Timing, companions, fingerprint_file
 from reviewer.movie.npy import DatasetMovie, frames_layout
 from reviewer.movie.timing import _seconds
 
+# OME-NGFF space units (UCUM names the specification lists) in nanometres
+NGFF_NM = {"nanometer": 1.0, "micrometer": 1e3, "angstrom": 0.1, "millimeter": 1e6,
+           "picometer": 1e-3, "meter": 1e9}
+
 
 def need_module(module: str, path: Path, extra: str, what: str):
     try:
@@ -115,18 +119,20 @@ def _ngff(root, path: Path, ms: dict, channel: int | None, z: int | None, select
         index[names.index("t")] = None
         order = (kept.index("t"), kept.index("y"), kept.index("x"))
         view = AxesView(arr, tuple(index), order)
-    timing = Timing()
-    if "t" in names:
-        t_at = names.index("t")
-        unit = next((a.get("unit") for a in ms["axes"] if isinstance(a, dict)
-                     and str(a.get("name")).lower() == "t"), "s") or "s"
-        for tr in level.get("coordinateTransformations") or []:
-            if isinstance(tr, dict) and tr.get("type") == "scale":
-                step = _seconds(tr["scale"][t_at], {"second": "s", "millisecond": "ms",
-                                                   "microsecond": "us"}.get(unit, unit))
-                if step:
-                    timing = Timing(fps=1.0 / step, source="OME-NGFF time scale")
-    return view, key, "".join(n.upper() for n in names), timing, notices
+    units = {str(a.get("name")).lower(): a.get("unit") for a in ms["axes"] if isinstance(a, dict)}
+    scale = next((tr["scale"] for tr in level.get("coordinateTransformations") or []
+                  if isinstance(tr, dict) and tr.get("type") == "scale"), None)
+    timing, pixel_nm = Timing(), None
+    if scale is not None and "t" in names:
+        unit = units.get("t") or "s"
+        step = _seconds(scale[names.index("t")], {"second": "s", "millisecond": "ms",
+                                                  "microsecond": "us"}.get(unit, unit))
+        if step:
+            timing = Timing(fps=1.0 / step, source="OME-NGFF time scale")
+    nm = NGFF_NM.get(str(units.get("x") or "").lower())
+    if scale is not None and nm and float(scale[names.index("x")]) > 0:
+        pixel_nm = float(scale[names.index("x")]) * nm
+    return view, key, "".join(n.upper() for n in names), timing, notices, pixel_nm
 
 
 class _Indexed:
@@ -164,9 +170,10 @@ def open_zarr(path: Path, dataset: str | None = None, axes: str | None = None,
     selection: dict = {}
     ms = None if hasattr(root, "shape") or dataset else _multiscales(root)
     if ms is not None:
-        data, key, stored, timing, notices = _ngff(root, path, ms, channel, z, selection)
+        data, key, stored, timing, notices, pixel_nm = _ngff(root, path, ms, channel, z, selection)
         kind = "OME-NGFF level"
     else:
+        pixel_nm = None
         if hasattr(root, "shape"):
             key, arr, found = "/", root, {}
         else:
@@ -189,5 +196,5 @@ def open_zarr(path: Path, dataset: str | None = None, axes: str | None = None,
     movie = DatasetMovie(data, path, layout=f"{kind} {key}, {shape[0]} frames, stored as {stored}",
                          rgb=rgb, timing=timing, fingerprint=fingerprint_zarr(path),
                          notices=notices + more)
-    movie.axes, movie.selection = stored, selection
+    movie.axes, movie.selection, movie.pixel_size_nm = stored, selection, pixel_nm
     return movie
