@@ -201,3 +201,13 @@ def test_stack_without_a_time_axis_reads_its_planes_as_frames(tmp_path, flavour)
     with open_movie(z_stack) as m:
         assert m.n_frames == 20 and any("20 slices are read as frames" in n for n in m.notices)
         np.testing.assert_array_equal(m.block(0, 20), frames[:20])
+
+
+def test_plane_of_a_hyperstack_in_reused_blocks(tmp_path):
+    data = hyperstack()[:30]
+    p = tmp_path / "hs.tif"
+    tifffile.imwrite(p, data, imagej=True, metadata={"axes": "TZCYX"})
+    with open_movie(p, z=2, channel=1) as m:
+        # other planes lie between this plane's frames: each block holds only this plane's pixels
+        got = np.concatenate([b.copy() for _, b in m.iter_blocks(7, reuse=True)])
+        np.testing.assert_array_equal(got, data[:, 2, 1])

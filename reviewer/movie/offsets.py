@@ -84,10 +84,13 @@ class OffsetMovie(Movie):
         return out
 
     def _stride(self) -> int | None:
-        """The constant byte distance between consecutive frames, if there is one (cached)."""
+        """The constant byte distance between consecutive frames, if there is one and the gaps are
+        small (at most one frame: the reused buffer spans the gaps too; a plane of a hyperstack,
+        with other planes between its frames, is read frame by frame instead)."""
         if not hasattr(self, "_const_stride"):
             d = np.diff(self.offsets)
-            ok = len(d) > 0 and bool(np.all(d == d[0])) and self.frame_bytes <= int(d[0])
+            ok = (len(d) > 0 and bool(np.all(d == d[0]))
+                  and self.frame_bytes <= int(d[0]) <= 2 * self.frame_bytes)
             self._const_stride = int(d[0]) if ok else None
         return self._const_stride
 
