@@ -177,3 +177,11 @@ def test_hdf5_dataset_claiming_huge_frames(tmp_path, capsys):
         f.create_dataset("m", shape=(3, 200000, 200000), dtype="u2", chunks=(1, 1000, 1000),
                          compression="gzip")
     assert "GiB" in _one_line_exit_2(capsys, p, "scan")
+
+
+def test_absurd_frame_count_of_tiny_frames_refused(tmp_path, capsys):
+    data = tmp_path / "dots.raw"
+    with open(data, "wb") as f:
+        f.truncate(300_000_000)  # a sparse 300 MB file: 3*10^8 one-pixel frames
+    (tmp_path / "dots.raw.json").write_text(json.dumps({"height": 1, "width": 1, "dtype": "uint8"}))
+    assert "more than the 100,000,000 frames" in _one_line_exit_2(capsys, data)

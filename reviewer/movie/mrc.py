@@ -21,7 +21,7 @@ import numpy as np
 from reviewer.errors import BadInput
 from reviewer.movie.base import Movie, Timing
 from reviewer.movie.extra import need_module
-from reviewer.movie.offsets import OffsetMovie
+from reviewer.movie.offsets import OffsetMovie, even_offsets
 from reviewer.movie.pixels import output_dtype, to_frames
 
 MRC_SUFFIXES = (".mrc", ".mrcs", ".st", ".ali", ".map")
@@ -100,7 +100,7 @@ def open_mrc(path: Path, fingerprint: str) -> Movie:
             raise BadInput(f"{path}: truncated MRC file: no whole {ny}x{nx} frame")
         if n < nz:
             notices.append(f"truncated: {n} of {nz} frames readable")
-        offsets = start + np.arange(n, dtype=np.int64) * frame_bytes
+        offsets = even_offsets(start, n, frame_bytes, path)
         movie = OffsetMovie(path, offsets, (ny, nx), dtype, out,
                             layout=f"MRC2014, {n} frames, mode {mode}{ext}, read by offset",
                             fingerprint=fingerprint, notices=notices)

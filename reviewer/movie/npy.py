@@ -14,7 +14,7 @@ import numpy as np
 from reviewer.errors import BadInput
 from reviewer.movie.arrays import holdings, pick
 from reviewer.movie.base import Movie, Timing
-from reviewer.movie.offsets import OffsetMovie
+from reviewer.movie.offsets import OffsetMovie, even_offsets
 from reviewer.movie.pixels import (
     RGB_NOTICE,
     frame_limit,
@@ -139,7 +139,7 @@ def open_npy(path: Path, fingerprint: str) -> Movie:
     except ValueError as exc:
         raise BadInput(f"{path}: {exc}") from None
     notices += [note] if note else []
-    offsets = offset + np.arange(n, dtype=np.int64) * frame_bytes
+    offsets = even_offsets(offset, n, frame_bytes, path)
     return OffsetMovie(path, offsets, frame_shape, dtype, out, layout=layout, fingerprint=fingerprint,
                        notices=notices)
 
@@ -194,7 +194,7 @@ def open_npz(path: Path, fingerprint: str, dataset: str | None = None) -> Movie:
     if offset is not None:
         frame_bytes = math.prod(shape[1:]) * dtype.itemsize
         out, note = (np.dtype(np.float32), None) if rgb else output_dtype(dtype, ".npz")
-        offsets = offset + np.arange(shape[0], dtype=np.int64) * frame_bytes
+        offsets = even_offsets(offset, shape[0], frame_bytes, path)
         movie = OffsetMovie(path, offsets, shape[1:], dtype, out, fingerprint=fingerprint,
                             layout=f"NumPy .npz array {key}, {shape[0]} frames, read by offset",
                             notices=notices + ([note] if note else []))

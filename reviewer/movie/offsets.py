@@ -20,6 +20,16 @@ from reviewer.errors import BadInput
 from reviewer.movie.base import Movie, Timing
 from reviewer.movie.pixels import to_frames
 
+MAX_FRAMES = 100_000_000  # 10^8 frames (an 800 MB offset index): more is a damaged header
+
+
+def even_offsets(first: int, n: int, frame_bytes: int, path: Path) -> np.ndarray:
+    """Byte offsets of n frames stored one after the other from `first` (checked before allocating)."""
+    if n > MAX_FRAMES:
+        raise BadInput(f"{path}: {n:,} frames of {frame_bytes:,} bytes: more than the {MAX_FRAMES:,} "
+                       "frames a movie may have (a damaged header?)")
+    return first + np.arange(n, dtype=np.int64) * frame_bytes
+
 
 class OffsetMovie(Movie):
     """Frame i is `frame_shape` pixels of `file_dtype` starting at byte `offsets[i]`.

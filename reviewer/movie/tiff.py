@@ -21,7 +21,7 @@ import tifffile
 
 from reviewer.errors import BadInput
 from reviewer.movie.base import Movie, Timing
-from reviewer.movie.offsets import OffsetMovie
+from reviewer.movie.offsets import OffsetMovie, even_offsets
 from reviewer.movie.pageindex import frame_index
 from reviewer.movie.pixels import RGB_NOTICE, output_dtype, to_frames
 from reviewer.movie.tiffifd import (
@@ -227,7 +227,7 @@ def _open(path: Path, fd: int, size: int, fingerprint: str, show_progress: bool,
         info1 = page_info(ifd1) if ifd1 is not None else None
         if info1 is None or info1.data_offset == first + frame_bytes:
             n = min(declared, max(0, (size - first) // frame_bytes))
-            offsets = first + np.arange(n, dtype=np.int64) * frame_bytes
+            offsets = even_offsets(first, n, frame_bytes, path)
             single = " single IFD," if ifd0.next == 0 else ""
             layout = f"{flavour}{big}, contiguous stack,{single} {n} frames read by offset"
             truncated = n < declared
@@ -239,7 +239,7 @@ def _open(path: Path, fd: int, size: int, fingerprint: str, show_progress: bool,
             # the directories came after the pixels and are cut off (e.g. a truncated OME-TIFF):
             # read the whole frames that follow the first one at its size
             whole = (min(size, ifd0.next) - info0.data_offset) // frame_bytes
-            offsets = info0.data_offset + np.arange(whole, dtype=np.int64) * frame_bytes
+            offsets = even_offsets(info0.data_offset, whole, frame_bytes, path)
             notices.append(f"the page directories after the pixels are cut off: {whole} whole "
                            "frames read as one contiguous run after the first page")
         if planes is None and len(index.runs) > 1:
