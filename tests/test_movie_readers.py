@@ -262,7 +262,7 @@ def test_file_cut_after_open_is_bad_input_not_a_crash(tmp_path):
     with open_movie(path) as m:
         with open(path, "r+b") as f:
             f.truncate(200)
-        with pytest.raises(BadInput, match=r"m\.npy: the file ended"):
+        with pytest.raises(BadInput, match=r"m\.npy: frame 15 cannot be read: the file ends"):
             m.frame(15)
 
 

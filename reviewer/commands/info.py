@@ -38,7 +38,10 @@ def text_lines(d: dict) -> list[str]:
             f"duration  {dur}",
             f"timing    {timing}",
             f"size      {_size(d['file_size'])}",
-            f"layout    {d['layout']}"]
+            f"layout    {d['layout']}",
+            f"axes      {d.get('axes', 'TYX')}" + "".join(
+                f", {k} {v}" for k, v in (d.get("selection") or {}).items())] + (
+            [f"pixel     {d['pixel_size_nm']:.6g} nm"] if d.get("pixel_size_nm") else [])
 
 
 def run(args: argparse.Namespace) -> int:

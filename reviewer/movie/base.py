@@ -11,6 +11,8 @@ from pathlib import Path
 
 import numpy as np
 
+from reviewer.errors import BadInput
+
 
 @dataclass(frozen=True)
 class Timing:
@@ -45,17 +47,54 @@ class Timing:
         return None
 
 
-def fingerprint_file(path: str | os.PathLike, chunk: int = 1 << 20) -> str:
-    """Cheap stable identity of a file: size, mtime and hashes of the first and last MiB."""
-    p = Path(path)
-    st = p.stat()
-    h = hashlib.blake2b(digest_size=12)
-    h.update(f"{st.st_size}:{st.st_mtime_ns}".encode())
-    with open(p, "rb") as f:
+FINGERPRINT_VERSION = 2  # part of every fingerprint: a change of what is hashed gives new keys
+SPREAD_BLOCKS = 16  # blocks sampled evenly through the middle of a file (one at its exact centre)
+SPREAD_BYTES = 64 << 10
+TIMES_SUFFIX = ".times.csv"  # per-frame times beside a movie: <movie>.times.csv (see timing.py)
+
+
+def _hash_content(h, path: Path, chunk: int, label: str = "") -> None:
+    """Size, mtime, the first and last `chunk` bytes (the whole file up to 2 chunks), blocks spread
+    evenly between them and one at the exact centre."""
+    st = path.stat()
+    h.update(f"{label}:{st.st_size}:{st.st_mtime_ns};".encode())
+    size = st.st_size
+    with open(path, "rb") as f:
         h.update(f.read(chunk))
-        if st.st_size > chunk:
-            f.seek(max(st.st_size - chunk, chunk))
+        if size > 2 * chunk:
+            inner = size - 2 * chunk - SPREAD_BYTES
+            for k in range(SPREAD_BLOCKS + 1):
+                at = chunk + max(0, inner) * k // SPREAD_BLOCKS
+                f.seek(at)
+                h.update(f.read(SPREAD_BYTES))
+            f.seek(size // 2 - SPREAD_BYTES // 2)
+            h.update(f.read(SPREAD_BYTES))
+        if size > chunk:
+            f.seek(max(size - chunk, chunk))
             h.update(f.read(chunk))
+
+
+def companions(path: str | os.PathLike) -> list[Path]:
+    """Files beside a movie that decide how it is read: ``<movie>.times.csv`` (frame times)."""
+    p = Path(path)
+    return [q for q in (p.parent / (p.name + TIMES_SUFFIX),) if q.is_file()]
+
+
+def fingerprint_file(path: str | os.PathLike, chunk: int = 1 << 20,
+                     also: tuple[str | os.PathLike, ...] = ()) -> str:
+    """Cheap stable identity of a movie file: size, mtime and hashes of its first and last MiB and of
+    blocks spread through its middle, plus the same of each companion file that decides the result
+    (`also`, e.g. a raw descriptor, and the ``<movie>.times.csv`` when there is one; files up to
+    2 MiB are hashed whole). The movie's name is not part of it: caches follow a renamed file."""
+    p = Path(path)
+    h = hashlib.blake2b(digest_size=12)
+    h.update(f"v{FINGERPRINT_VERSION};".encode())
+    _hash_content(h, p, chunk)
+    for extra in (*map(Path, also), *companions(p)):
+        try:
+            _hash_content(h, extra, chunk, "+" + extra.name[len(p.name):])
+        except OSError:
+            h.update(f"{extra.name}: unreadable;".encode())
     return h.hexdigest()
 
 
@@ -74,6 +113,9 @@ class Movie(ABC):
     timing: Timing = field(default_factory=Timing)
     fingerprint: str = ""
     notices: list[str] = field(default_factory=list)  # things the user must be told (truncation, ...)
+    axes: str = "TYX"  # the stored axes, frames axis T first or not, e.g. "YXT", "TZCYX", "TYXS"
+    selection: dict = field(default_factory=dict)  # what was chosen in the file: series, channel, z, ...
+    pixel_size_nm: float | None = None  # when the file stores it (MRC voxel size, ...)
 
     @abstractmethod
     def _read(self, start: int, stop: int) -> np.ndarray:
@@ -85,7 +127,19 @@ class Movie(ABC):
             i += self.n_frames
         if not 0 <= i < self.n_frames:
             raise IndexError(f"frame {i} outside 0..{self.n_frames - 1}")
-        return self._read(i, i + 1)[0]
+        return self._safe_read(i, i + 1)[0]
+
+    def _safe_read(self, start: int, stop: int) -> np.ndarray:
+        """`_read`, with any failure of the file or its decoder turned into BadInput naming the
+        frames: the one exception for "these frames cannot be read" (the UI draws a placeholder)."""
+        try:
+            return self._read(start, stop)
+        except BadInput:
+            raise
+        except Exception as exc:  # noqa: BLE001 - decoders and filters raise anything
+            what = f"frame {start}" if stop - start == 1 else f"frames {start}..{stop - 1}"
+            text = str(exc).splitlines()[0][:100] if str(exc) else exc.__class__.__name__
+            raise BadInput(f"{self.path}: {what} cannot be read ({text})") from None
 
     def block(self, start: int, stop: int) -> np.ndarray:
         """Consecutive frames [start, stop), clipped to the movie."""
@@ -93,7 +147,7 @@ class Movie(ABC):
         stop = min(self.n_frames, int(stop))
         if stop <= start:
             return np.empty((0, *self.shape), dtype=self.dtype)
-        return self._read(start, stop)
+        return self._safe_read(start, stop)
 
     def iter_blocks(self, size: int = 64, start: int = 0, stop: int | None = None, *,
                     reuse: bool = False) -> Iterator[tuple[int, np.ndarray]]:
@@ -147,6 +201,9 @@ class Movie(ABC):
             "timing_source": self.timing.source,
             "file_size": size,
             "layout": self.layout,
+            "axes": self.axes,
+            "selection": dict(self.selection),
+            "pixel_size_nm": self.pixel_size_nm,
             "fingerprint": self.fingerprint,
             "notices": list(self.notices),
         }

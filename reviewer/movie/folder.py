@@ -11,7 +11,7 @@ import tifffile
 from PIL import Image, UnidentifiedImageError
 
 from reviewer.errors import BadInput
-from reviewer.movie.base import Movie, Timing
+from reviewer.movie.base import Movie, Timing, companions, fingerprint_file
 from reviewer.movie.pixels import RGB_NOTICE, output_dtype, to_frames
 
 SUFFIXES = {".png": "PNG", ".tif": "TIFF", ".tiff": "TIFF"}
@@ -86,16 +86,19 @@ def list_frames(folder: Path) -> list[Path]:
     return sorted(files, key=lambda p: natural_key(p.name))
 
 
-def fingerprint_folder(files: list[Path]) -> str:
-    """Cheap identity of a frame folder: names, sizes and mtimes (no file contents)."""
+def fingerprint_folder(files: list[Path], folder: Path | None = None) -> str:
+    """Cheap identity of a frame folder: names, sizes and mtimes (no frame contents), and the
+    ``<folder>.times.csv`` when there is one."""
     h = hashlib.blake2b(digest_size=12)
     for f in files:
         st = f.stat()
         h.update(f"{f.name}:{st.st_size}:{st.st_mtime_ns};".encode())
+    for extra in companions(folder if folder is not None else files[0]):
+        h.update(fingerprint_file(extra).encode())
     return h.hexdigest()
 
 
 def open_folder(folder: Path) -> Movie:
     files = list_frames(folder)
     first = _read_image(files[0])
-    return FolderMovie(folder, files, first, fingerprint_folder(files))
+    return FolderMovie(folder, files, first, fingerprint_folder(files, folder))

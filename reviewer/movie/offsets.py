@@ -20,6 +20,16 @@ from reviewer.errors import BadInput
 from reviewer.movie.base import Movie, Timing
 from reviewer.movie.pixels import to_frames
 
+MAX_FRAMES = 100_000_000  # 10^8 frames (an 800 MB offset index): more is a damaged header
+
+
+def even_offsets(first: int, n: int, frame_bytes: int, path: Path) -> np.ndarray:
+    """Byte offsets of n frames stored one after the other from `first` (checked before allocating)."""
+    if n > MAX_FRAMES:
+        raise BadInput(f"{path}: {n:,} frames of {frame_bytes:,} bytes: more than the {MAX_FRAMES:,} "
+                       "frames a movie may have (a damaged header?)")
+    return first + np.arange(n, dtype=np.int64) * frame_bytes
+
 
 class OffsetMovie(Movie):
     """Frame i is `frame_shape` pixels of `file_dtype` starting at byte `offsets[i]`.
@@ -47,8 +57,8 @@ class OffsetMovie(Movie):
                          layout=layout, timing=timing or Timing(), fingerprint=fingerprint,
                          notices=list(notices or []))
 
-    def _fill(self, buf: np.ndarray, offset: int) -> None:
-        """Read exactly buf.nbytes bytes at offset into buf."""
+    def _fill(self, buf: np.ndarray, offset: int, first: int, count: int = 1) -> None:
+        """Read exactly buf.nbytes bytes at offset into buf (frames first..first+count-1)."""
         if self._fd is None:
             raise ValueError("movie is closed")
         view = memoryview(buf).cast("B")
@@ -61,8 +71,10 @@ class OffsetMovie(Movie):
                     os.lseek(self._fd, offset + done, os.SEEK_SET)
                     got = os.readv(self._fd, [view[done:]])
             if got <= 0:
-                raise BadInput(f"{self.path}: the file ended at byte {offset + done} while reading a "
-                               "frame (was it truncated after opening?)")
+                starts = self.offsets[first:first + count]
+                bad = first + max(0, int(np.searchsorted(starts, offset + done, "right")) - 1)
+                raise BadInput(f"{self.path}: frame {bad} cannot be read: the file ends at byte "
+                               f"{offset + done} (was it truncated after opening?)")
             done += got
 
     def _raw(self, start: int, stop: int) -> np.ndarray:
@@ -73,19 +85,22 @@ class OffsetMovie(Movie):
         step = int(offs[1] - offs[0]) if n > 1 else fb
         if n > 1 and step >= fb and step <= 2 * fb and np.all(np.diff(offs) == step):
             span = np.empty((n - 1) * step + fb, np.uint8)
-            self._fill(span, int(offs[0]))
+            self._fill(span, int(offs[0]), start, n)
             strided = np.lib.stride_tricks.as_strided(span, (n, fb), (step, 1))
             return np.ascontiguousarray(strided).view(self.file_dtype).reshape(n, *self.frame_shape)
         out = np.empty((n, *self.frame_shape), self.file_dtype)
         for k, o in enumerate(offs):
-            self._fill(out[k], int(o))
+            self._fill(out[k], int(o), start + k)
         return out
 
     def _stride(self) -> int | None:
-        """The constant byte distance between consecutive frames, if there is one (cached)."""
+        """The constant byte distance between consecutive frames, if there is one and the gaps are
+        small (at most one frame: the reused buffer spans the gaps too; a plane of a hyperstack,
+        with other planes between its frames, is read frame by frame instead)."""
         if not hasattr(self, "_const_stride"):
             d = np.diff(self.offsets)
-            ok = len(d) > 0 and bool(np.all(d == d[0])) and self.frame_bytes <= int(d[0])
+            ok = (len(d) > 0 and bool(np.all(d == d[0]))
+                  and self.frame_bytes <= int(d[0]) <= 2 * self.frame_bytes)
             self._const_stride = int(d[0]) if ok else None
         return self._const_stride
 
@@ -105,7 +120,7 @@ class OffsetMovie(Movie):
         for s in range(start, stop, size):
             n = min(s + size, stop) - s
             span = buf[: (n - 1) * step + self.frame_bytes]
-            self._fill(span, int(self.offsets[s]))
+            self._fill(span, int(self.offsets[s]), s, n)
             yield s, np.ndarray((n, *self.frame_shape), self.file_dtype, buffer=span,
                                 strides=(step, *inner))
 

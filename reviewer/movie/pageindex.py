@@ -30,7 +30,8 @@ from reviewer.movie.tiffifd import (
 from reviewer.paths import cache_dir
 from reviewer.progress import Progress
 
-INDEX_VERSION = 1
+INDEX_VERSION = 2  # 2: runs of pages kept
+MAX_RUNS = 1000  # runs of same-sized pages remembered (more: the rest count as one run)
 N_SAMPLES = 16  # IFDs checked in the middle of the file before trusting a constant stride
 PROGRESS_MIN_BYTES = 256 << 20  # files smaller than this are walked without a progress bar
 
@@ -41,6 +42,7 @@ class PageIndex:
     kind: str  # "data" (pixel offsets) or "ifd" (IFD offsets, decode each page)
     chain_broken: bool = False  # the IFD chain points past the end of the file (truncated)
     skipped: int = 0  # pages of another geometry left out
+    runs: tuple[int, ...] = (0,)  # first frame of each run of pages not interrupted by other pages
     method: str = "walk"  # "stride", "walk" or "cache"
 
 
@@ -68,6 +70,12 @@ def try_stride(fd: int, hdr: Header, size: int, ref: PageInfo, kind: str) -> Pag
     s_ifd, s_dat = o[2] - o[1], d[2] - d[1]
     if s_ifd <= 0 or s_dat <= 0 or o[3] - o[2] != s_ifd or d[3] - d[2] != s_dat:
         return None
+    # Compressed pages: a constant stride holds only while every page stores the same number of
+    # bytes at the same place relative to its IFD; each checked IFD must show exactly that.
+    strips = (infos[1].stored, infos[1].data_end - o[1])
+    if kind == "ifd" and any((i.stored, i.data_end - oo) != strips
+                             for i, oo in zip(infos[1:], o[1:], strict=True)):
+        return None
     frame_bytes = ref.geometry.height * ref.geometry.width * ref.geometry.samples * ref.geometry.bits // 8
     ifd_bytes = hdr.count_size + ifds[1].n_entries * hdr.entry_size + hdr.pointer_size
     last_end = frame_bytes if kind == "data" else ifd_bytes
@@ -81,7 +89,8 @@ def try_stride(fd: int, hdr: Header, size: int, ref: PageInfo, kind: str) -> Pag
         ifd = read_ifd(fd, hdr, o[1] + (k - 1) * s_ifd, size)
         info = page_info(ifd) if ifd is not None else None
         if (not _matches(info, ref) or _entry(info, ifd.offset, kind) != d[1] + (k - 1) * s_dat
-                or info.data_end > size or info.data_end == 0):
+                or info.data_end > size or info.data_end == 0
+                or (kind == "ifd" and (info.stored, info.data_end - ifd.offset) != strips)):
             return None
         return ifd
 
@@ -150,6 +159,7 @@ def walk(fd: int, hdr: Header, size: int, ref: PageInfo, kind: str,
     out = np.empty(1024, dtype=np.int64)
     seen = np.empty(1024, dtype=np.int64)  # IFD offsets visited, to catch loops in the chain
     n = visited = skipped = 0
+    runs, gap = [0], False
     offset, previous = hdr.first_ifd, -1
     broken = False
     g = ref.geometry
@@ -187,12 +197,16 @@ def walk(fd: int, hdr: Header, size: int, ref: PageInfo, kind: str,
                 if kind == "data":  # this IFD becomes the template for the fast path
                     same = _template(hdr, table)
         if entry is not None:
+            if gap and n and len(runs) < MAX_RUNS:
+                runs.append(n)
+            gap = False
             if n == len(out):
                 out = np.resize(out, 2 * n)
             out[n] = entry
             n += 1
         else:
             skipped += 1
+            gap = True
         if (visited & 4095) == 0:
             bar.total = max(bar.total, n)
             bar.update(n)
@@ -200,7 +214,8 @@ def walk(fd: int, hdr: Header, size: int, ref: PageInfo, kind: str,
     bar.total = n
     bar.update(n)
     bar.close()
-    return PageIndex(out[:n].copy(), kind, chain_broken=broken, skipped=skipped, method="walk")
+    return PageIndex(out[:n].copy(), kind, chain_broken=broken, skipped=skipped, method="walk",
+                     runs=tuple(runs))
 
 
 def _paths(fingerprint: str) -> tuple[Path, Path]:
@@ -221,8 +236,9 @@ def load(fingerprint: str, kind: str) -> PageIndex | None:
     if (meta.get("version") != INDEX_VERSION or meta.get("kind") != kind
             or offsets.dtype != np.int64 or offsets.ndim != 1 or len(offsets) != meta.get("frames")):
         return None
+    runs = tuple(int(r) for r in meta.get("runs", [0]))
     return PageIndex(offsets, kind, bool(meta.get("chain_broken")), int(meta.get("skipped", 0)),
-                     method="cache")
+                     method="cache", runs=runs)
 
 
 def save(fingerprint: str, index: PageIndex) -> Path | None:
@@ -233,7 +249,7 @@ def save(fingerprint: str, index: PageIndex) -> Path | None:
         np.save(tmp, index.offsets)
         tmp.replace(npy)
         meta = {"version": INDEX_VERSION, "kind": index.kind, "frames": int(len(index.offsets)),
-                "chain_broken": index.chain_broken, "skipped": index.skipped,
+                "chain_broken": index.chain_broken, "skipped": index.skipped, "runs": list(index.runs),
                 "built_by": index.method}
         meta_path.write_text(json.dumps(meta))
     except OSError:

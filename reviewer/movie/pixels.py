@@ -2,7 +2,29 @@
 
 from __future__ import annotations
 
+import os
+
 import numpy as np
+
+MAX_FRAME_BYTES = 8 << 30  # one frame over 8 GiB is refused: no camera writes such frames
+
+
+def frame_limit() -> int:
+    """Largest frame (bytes) a movie may have here: 8 GiB, or a quarter of this machine's memory."""
+    try:
+        memory = os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
+    except (AttributeError, ValueError, OSError):
+        return MAX_FRAME_BYTES
+    return min(MAX_FRAME_BYTES, max(1 << 28, memory // 4))
+
+
+def frame_size_problem(frame_bytes: int) -> str | None:
+    """Why a frame of this many bytes cannot be read here, or None."""
+    limit = frame_limit()
+    if frame_bytes > limit:
+        return (f"one frame would take {frame_bytes / 2**30:.1f} GiB, more than the "
+                f"{limit / 2**30:.1f} GiB a frame may take on this machine")
+    return None
 
 # Frames keep these dtypes as stored (native byte order).
 KEPT = (np.uint8, np.uint16, np.int16, np.uint32, np.float32)

@@ -18,7 +18,7 @@ import numpy as np
 
 from reviewer.errors import BadInput
 from reviewer.movie.base import Movie, Timing
-from reviewer.movie.offsets import OffsetMovie
+from reviewer.movie.offsets import OffsetMovie, even_offsets
 from reviewer.movie.pixels import output_dtype
 
 RAW_SUFFIXES = (".raw", ".bin", ".dat")
@@ -83,7 +83,7 @@ def open_raw(path: Path, fingerprint_of) -> Movie:
     out, note = output_dtype(dtype, "raw data")
     notices += [note] if note else []
     timing = Timing(fps=fps, source=f"descriptor {desc_path.name}") if fps else Timing()
-    offsets = header + np.arange(n, dtype=np.int64) * frame_bytes
+    offsets = even_offsets(header, n, frame_bytes, data_path)
     layout = f"raw binary + JSON descriptor, {n} frames {h}x{w} {dtype.name} ({desc.get('byte_order', 'little')}-endian)"
     return OffsetMovie(data_path, offsets, (h, w), dtype, out, layout=layout, timing=timing,
-                       fingerprint=fingerprint_of(data_path), notices=notices)
+                       fingerprint=fingerprint_of(data_path, also=(desc_path,)), notices=notices)

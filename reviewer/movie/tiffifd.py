@@ -13,6 +13,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from reviewer.movie.pixels import frame_size_problem
+
 # TIFF field type -> (numpy code, size in bytes); TIFF 6.0 section 2 plus BigTIFF LONG8/SLONG8/IFD8.
 _TYPES = {1: ("u1", 1), 2: ("u1", 1), 3: ("u2", 2), 4: ("u4", 4), 5: ("u4", 8), 6: ("i1", 1),
           7: ("u1", 1), 8: ("i2", 2), 9: ("i4", 4), 10: ("i4", 8), 11: ("f4", 4), 12: ("f8", 8),
@@ -159,12 +161,18 @@ class Geometry:
     planar: int
     tiled: bool
 
+    @property
+    def frame_bytes(self) -> int:
+        """Bytes of one decoded frame (Python ints: never overflows, whatever the tags claim)."""
+        return self.height * self.width * self.samples * self.bits // 8
+
 
 @dataclass(frozen=True)
 class PageInfo:
     geometry: Geometry
     data_offset: int  # first byte of the frame's pixels when stored plainly in one run, else -1
     data_end: int  # one past the last byte of the page's strips or tiles (0 when unknown)
+    stored: int = 0  # bytes in the page's strips or tiles (their byte counts summed; 0 when unknown)
 
     @property
     def plain(self) -> bool:
@@ -196,11 +204,11 @@ def page_info(ifd: Ifd) -> PageInfo | None:
         first, end, total = int(starts[0]), int((starts + counts).max()), int(counts.sum())
         joined = bool(np.all(starts[1:] == starts[:-1] + counts[:-1]))
     uniform = bits_all is None or bool(np.all(bits_all == bits))
-    need = height * width * samples * bits // 8
+    need = geo.frame_bytes
     if (geo.compression == 1 and not geo.tiled and uniform and bits in (8, 16, 32, 64)
             and (samples == 1 or geo.planar == 1) and joined and total >= need):
-        return PageInfo(geo, first, first + need)
-    return PageInfo(geo, -1, end)
+        return PageInfo(geo, first, first + need, total)
+    return PageInfo(geo, -1, end, total)
 
 
 def numpy_dtype(geo: Geometry, byteorder: str) -> np.dtype | None:
@@ -209,3 +217,25 @@ def numpy_dtype(geo: Geometry, byteorder: str) -> np.dtype | None:
     if kind is None or geo.bits not in (8, 16, 32, 64) or (kind == "f" and geo.bits == 8):
         return None
     return np.dtype(f"{byteorder}{kind}{geo.bits // 8}")
+
+
+# Largest decoded/stored size ratio each TIFF compression can reach (a page that claims more is damaged).
+# PackBits: 2 bytes repeat a byte 128 times (TIFF 6.0 section 9); Deflate: 1032:1 (zlib technical
+# details, from memory); LZW: 12-bit codes for strings of up to 4096 bytes (TIFF 6.0 section 13).
+# Others (JPEG, LZMA, Zstandard, ...) are only bounded by pixels.frame_limit().
+MAX_RATIO = {1: 1, 32773: 64, 8: 1100, 32946: 1100, 5: 2800}
+
+
+def size_problem(geo: Geometry, stored: int, file_size: int) -> str | None:
+    """Why a page's claimed frame size cannot be true for the bytes it has, or None when it can."""
+    need = geo.frame_bytes
+    text = f"pages claim {geo.height}x{geo.width}x{geo.samples} {geo.bits}-bit frames ({need:,} bytes)"
+    too_big = frame_size_problem(need)
+    if too_big:
+        return f"{text}: {too_big}"
+    ratio = MAX_RATIO.get(geo.compression)
+    if ratio is not None and stored and need > stored * ratio:
+        return f"{text} but the first page stores only {stored:,} bytes"
+    if ratio is not None and need > file_size * ratio:
+        return f"{text}, more than a {file_size:,}-byte file can hold"
+    return None

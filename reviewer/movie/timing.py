@@ -13,9 +13,7 @@ from typing import Any
 import numpy as np
 
 from reviewer.errors import BadInput
-from reviewer.movie.base import Timing
-
-TIMES_SUFFIX = ".times.csv"
+from reviewer.movie.base import TIMES_SUFFIX, Timing
 
 # Seconds per unit, for the time units ImageJ and OME write (OME uses UCUM-style symbols).
 _UNITS = {"s": 1.0, "sec": 1.0, "second": 1.0, "seconds": 1.0, "ms": 1e-3, "msec": 1e-3,
@@ -80,22 +78,24 @@ def imagej_timing(md: dict | None) -> Timing | None:
     return None
 
 
-def ome_timing(ome: dict | None, n_frames: int) -> Timing | None:
-    """Timing of the first OME image: per-plane DeltaT when every frame has one, else TimeIncrement.
+def ome_timing(ome: dict | None, n_frames: int, image_index: int = 0, z: int = 0,
+               c: int = 0) -> Timing | None:
+    """Timing of one OME image's time points (plane z, channel c): per-plane DeltaT when every frame
+    has one, else TimeIncrement.
 
     `ome` is ``tifffile.xml2dict(ome_xml)``."""
     if not ome:
         return None
     image = ome.get("OME", {}).get("Image")
     if isinstance(image, list):
-        image = image[0] if image else None
+        image = image[image_index] if len(image) > image_index else None
     pixels = (image or {}).get("Pixels") or {}
     planes = pixels.get("Plane")
     planes = [planes] if isinstance(planes, dict) else list(planes or [])
+    planes = [p for p in planes if isinstance(p, dict) and _int(p.get("TheZ", 0)) == z
+              and _int(p.get("TheC", 0)) == c]
     if n_frames > 1 and len(planes) >= n_frames:
-        order = sorted(range(len(planes)), key=lambda i: (planes[i].get("TheT", 0),
-                                                         planes[i].get("TheZ", 0),
-                                                         planes[i].get("TheC", 0)))[:n_frames]
+        order = sorted(range(len(planes)), key=lambda i: _int(planes[i].get("TheT", 0)))[:n_frames]
         try:
             scale = [_UNITS.get(str(planes[i].get("DeltaTUnit", "s")).lower()) for i in order]
             times = np.array([float(planes[i]["DeltaT"]) * s for i, s in zip(order, scale, strict=True)])
@@ -107,6 +107,13 @@ def ome_timing(ome: dict | None, n_frames: int) -> Timing | None:
     if step:
         return Timing(fps=1.0 / step, source="OME TimeIncrement")
     return None
+
+
+def _int(value: Any) -> int:
+    try:
+        return int(value)
+    except (TypeError, ValueError):
+        return -1
 
 
 def resolve(movie_path: Path, n_frames: int, stored: Timing | None, fps: float | None,
