@@ -45,7 +45,10 @@ def _wait(pred, what: str, timeout: float = 20.0):
 
 
 def _open(sock: str, name: str, movie, env: dict, *options: str, size=(200, 60)) -> str:
-    cmd = " ".join(["exec", "env", *(f"{k}={shlex.quote(v)}" for k, v in env.items()),
+    # tmux started without a terminal puts COLUMNS/LINES in the pane's environment, and Textual
+    # would then keep that size for good: unset them so the app follows resizes
+    cmd = " ".join(["exec", "env", "-u", "COLUMNS", "-u", "LINES",
+                    *(f"{k}={shlex.quote(v)}" for k, v in env.items()),
                     *map(shlex.quote, REVIEWER), "review", shlex.quote(str(movie)), *options])
     verb = ["new-session", "-d", "-s", name, "-x", str(size[0]), "-y", str(size[1])]
     _tmux(sock, *verb, cmd)
@@ -173,6 +176,11 @@ def test_decision_keys_away_from_events_change_nothing_in_tmux(tmp_path):
     sock = f"reviewer-e2e-{uuid.uuid4().hex[:8]}"
     try:
         win = _open(sock, "far", movie, env, size=(80, 24))
+        lines = _screen(sock, win).splitlines()
+        keybar = lines[-1]
+        assert "?  help" in keybar and "q  quit" in keybar, keybar
+        assert lines[0].index("\u2595" if "\u2595" in lines[0] else "\u258f") >= 40, lines[0]
+        assert _status(sock, win).startswith(" frame "), lines
         _tmux(sock, "send-keys", "-t", win, "g")
         _wait(lambda: "Go to a frame" in _screen(sock, win), "the go-to prompt")
         _tmux(sock, "send-keys", "-t", win, str(far), "Enter")
@@ -185,6 +193,12 @@ def test_decision_keys_away_from_events_change_nothing_in_tmux(tmp_path):
                                               if w in ln), ""),
                          f"the reason after {key!r}")
             said.append(line.strip())
+        _tmux(sock, "resize-window", "-t", win, "-x", "70", "-y", "20")
+        _wait(lambda: "the review needs at least 80×24" in _screen(sock, win),
+              "the message: " + _screen(sock, win))
+        _tmux(sock, "resize-window", "-t", win, "-x", "80", "-y", "24")
+        _wait(lambda: f" frame {far}/" in _status(sock, win), "the screen back")
+        assert "needs at least" not in _screen(sock, win)
         _tmux(sock, "send-keys", "-t", win, "q")
         _wait(lambda: win not in _tmux(sock, "list-sessions", "-F", "#{session_name}"),
               "the app to quit", timeout=15)

@@ -237,6 +237,18 @@ class ReviewActions(PlaybackMixin):
     def action_pan_down(self) -> None:
         self._view("pan", 0, 1)
 
+    def action_toggle_list(self) -> None:
+        self.eventlist.toggle_class("hidden")
+        if self.eventlist.has_class("hidden") and self.focused is self.eventlist:
+            self.set_focus(None)
+
+    def action_focus_list(self) -> None:
+        """Tab: the event list takes the arrow keys; Tab again gives them back to the frame."""
+        if self.focused is self.eventlist:
+            self.set_focus(None)
+        elif not self.eventlist.has_class("hidden"):
+            self.set_focus(self.eventlist)
+
     def action_timeline_in(self) -> None:
         self.timeline.zoom_in()
 

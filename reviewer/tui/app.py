@@ -16,16 +16,17 @@ import numpy as np
 from textual.app import App, ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal
-from textual.widgets import Footer, ProgressBar
+from textual.widgets import ProgressBar
 
 from reviewer.tui import keymap as km
 from reviewer.tui.actions import ReviewActions
 from reviewer.tui.guard import AlertLine, Banner, GuardMixin
 from reviewer.tui.labels import load_labels
 from reviewer.tui.scanning import ScanMixin
-from reviewer.tui.status import StatusLine
+from reviewer.tui.status import LONG_MOVIE_S, KeyBar, StatusLine
 
 MIN_SIZE = (80, 24)
+NARROW_BELOW = 110  # columns: below this the event list shrinks to a narrow column
 CONTEXT_FRAMES = 12  # frames averaged before / after for the what-changed and average views
 POSITION_SAVE_S = 2.0  # the position is journaled this long after the cursor stops
 VIEW_TOLERANCE = 2  # a decision key acts on an event within this many frames of the viewed one
@@ -80,7 +81,7 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
         yield ProgressBar(id="scanbar", total=self.movie.n_frames, show_eta=True)
         yield AlertLine(id="alert")
         yield StatusLine(id="status")
-        yield Footer()
+        yield KeyBar(self.keymap, id="keybar")
 
     def on_mount(self) -> None:
         self.set_keymap(self.keymap.overrides(self.DEFAULT_SPECS))
@@ -88,6 +89,11 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
         self.timeline = self.query_one("#timeline")
         self.eventlist = self.query_one("#events")
         self.status = self.query_one("#status", StatusLine)
+        fps = self.session.meta.get("fps") or getattr(self.movie, "fps", None)
+        self.status.period_s = 1.0 / fps if fps else None
+        last = self.session.time_of(self.movie.n_frames - 1)
+        self.status.long_movie = last is not None and last >= LONG_MOVIE_S
+        self.fit_layout()
         self.update_banner()
         self.clear_alert()
         self.start_scan()
@@ -102,12 +108,22 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
         self.go(message.frame)
 
     def on_resize(self, event) -> None:
-        self.check_size()
+        self.fit_layout(event.size)  # self.size is still the old one here
+        self.check_size(event.size)
 
-    def check_size(self) -> None:
+    def fit_layout(self, size=None) -> None:
+        """Below NARROW_BELOW columns the event list becomes a narrow column (o hides it)."""
+        width = (size or self.size).width
+        with contextlib.suppress(Exception):  # before compose / after unmount: nothing to fit
+            self.query_one("#body").set_class(width < NARROW_BELOW, "narrow")
+
+    def check_size(self, size=None) -> None:
+        """Whenever the window is below MIN_SIZE, the too-small screen covers it (and closes
+        itself once the window is large enough again)."""
         from reviewer.tui.screens import TooSmallScreen
 
-        small = self.size.width < MIN_SIZE[0] or self.size.height < MIN_SIZE[1]
+        w, h = size or self.size
+        small = w < MIN_SIZE[0] or h < MIN_SIZE[1]
         if small and not any(isinstance(s, TooSmallScreen) for s in self.screen_stack):
             self.push_screen(TooSmallScreen(MIN_SIZE))  # it closes itself once big enough
 

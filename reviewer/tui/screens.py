@@ -148,16 +148,16 @@ class TooSmallScreen(ModalScreen[None]):
     def compose(self) -> ComposeResult:
         yield Static(self._message(), id="too-small")
 
-    def _message(self) -> str:
-        w, h = self.app.size
+    def _message(self, size=None) -> str:
+        w, h = size or self.app.size
         mw, mh = self.minimum
         return (f"The terminal is {w}×{h}; the review needs at least {mw}×{mh}.\n"
                 "Enlarge the window or the tmux pane to continue (q saves and quits).")
 
-    def on_resize(self) -> None:
-        w, h = self.app.size
+    def on_resize(self, event) -> None:
+        w, h = event.size
         if w >= self.minimum[0] and h >= self.minimum[1]:
             if self.is_current:
                 self.dismiss(None)
         else:
-            self.query_one("#too-small", Static).update(self._message())
+            self.query_one("#too-small", Static).update(self._message(event.size))
