@@ -44,10 +44,13 @@ def _wait(pred, what: str, timeout: float = 20.0):
     raise AssertionError(f"timed out waiting for {what}")
 
 
-def _open(sock: str, name: str, movie, env: dict, *options: str) -> str:
-    cmd = " ".join(["exec", "env", *(f"{k}={shlex.quote(v)}" for k, v in env.items()),
+def _open(sock: str, name: str, movie, env: dict, *options: str, size=(200, 60)) -> str:
+    # tmux started without a terminal puts COLUMNS/LINES in the pane's environment, and Textual
+    # would then keep that size for good: unset them so the app follows resizes
+    cmd = " ".join(["exec", "env", "-u", "COLUMNS", "-u", "LINES",
+                    *(f"{k}={shlex.quote(v)}" for k, v in env.items()),
                     *map(shlex.quote, REVIEWER), "review", shlex.quote(str(movie)), *options])
-    verb = ["new-session", "-d", "-s", name, "-x", "200", "-y", "60"]
+    verb = ["new-session", "-d", "-s", name, "-x", str(size[0]), "-y", str(size[1])]
     _tmux(sock, *verb, cmd)
     _wait(lambda: "pending" in _status(sock, name), "the first paint")
     return name
@@ -138,3 +141,70 @@ def test_review_in_tmux_then_export(tmp_path):
         assert sum(r["status"] == "rejected" for r in rows) == 2
     finally:
         subprocess.run(["tmux", "-L", sock, "kill-server"], capture_output=True, timeout=10)
+
+
+def _screen(sock: str, target: str) -> str:
+    return _tmux(sock, "capture-pane", "-p", "-t", target)
+
+
+def _far_frame(frames: list[int], n_frames: int, gap: int = 50) -> int:
+    """A frame at least `gap` frames from every event."""
+    for f in range(gap, n_frames - gap):
+        if all(abs(f - e) >= gap for e in frames):
+            return f
+    raise AssertionError("no frame far from every event")
+
+
+def test_decision_keys_away_from_events_change_nothing_in_tmux(tmp_path):
+    """On the demo's sample (scaled down): go to a frame >= 50 frames from any event, press a, r, 2,
+    q; the export shows every status unchanged and the screen said why each time."""
+    from sample_movies.growth import PRESETS, scaled, write_movie
+
+    env = {k: os.environ[k] for k in ("REVIEWER_CACHE_DIR", "REVIEWER_DATA_DIR",
+                                      "REVIEWER_CONFIG_DIR")}
+    full_env = {**os.environ, **env}
+    movie = tmp_path / "sample.tif"
+    write_movie(movie, scaled(PRESETS["sample"], 2000, 48, 64), seed=5, fps=400.0)
+    subprocess.run([*REVIEWER, "scan", str(movie)], check=True, env=full_env,
+                   capture_output=True, timeout=120)
+    before = _export(movie, full_env, tmp_path / "before.csv")
+    assert before and all(r["status"] == "candidate" for r in before)
+    spans = [int(r["frame"]) for r in before] + [int(r["frame_end"]) for r in before
+                                                  if r["frame_end"]]
+    far = _far_frame(spans, 2000)
+
+    sock = f"reviewer-e2e-{uuid.uuid4().hex[:8]}"
+    try:
+        win = _open(sock, "far", movie, env, size=(80, 24))
+        lines = _screen(sock, win).splitlines()
+        keybar = lines[-1]
+        assert "?  help" in keybar and "q  quit" in keybar, keybar
+        assert lines[0].index("\u2595" if "\u2595" in lines[0] else "\u258f") >= 40, lines[0]
+        assert _status(sock, win).startswith(" frame "), lines
+        _tmux(sock, "send-keys", "-t", win, "g")
+        _wait(lambda: "Go to a frame" in _screen(sock, win), "the go-to prompt")
+        _tmux(sock, "send-keys", "-t", win, str(far), "Enter")
+        _wait(lambda: f" frame {far}/" in _status(sock, win), f"frame {far}")
+        said = []
+        for key, what in (("a", "accept"), ("r", "reject"), ("2", "label 2")):
+            _tmux(sock, "send-keys", "-t", win, key)
+            want = f"no event at frame {far} — {what}:"
+            line = _wait(lambda w=want: next((ln for ln in _screen(sock, win).splitlines()
+                                              if w in ln), ""),
+                         f"the reason after {key!r}")
+            said.append(line.strip())
+        _tmux(sock, "resize-window", "-t", win, "-x", "70", "-y", "20")
+        _wait(lambda: "the review needs at least 80×24" in _screen(sock, win),
+              "the message: " + _screen(sock, win))
+        _tmux(sock, "resize-window", "-t", win, "-x", "80", "-y", "24")
+        _wait(lambda: f" frame {far}/" in _status(sock, win), "the screen back")
+        assert "needs at least" not in _screen(sock, win)
+        _tmux(sock, "send-keys", "-t", win, "q")
+        _wait(lambda: win not in _tmux(sock, "list-sessions", "-F", "#{session_name}"),
+              "the app to quit", timeout=15)
+    finally:
+        subprocess.run(["tmux", "-L", sock, "kill-server"], capture_output=True, timeout=10)
+    assert all("nothing changed" in s and "m marks one" in s for s in said), said
+    after = _export(movie, full_env, tmp_path / "after.csv")
+    assert [(r["event_id"], r["status"], r["label"]) for r in after] == \
+        [(r["event_id"], r["status"], r["label"]) for r in before]

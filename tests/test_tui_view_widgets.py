@@ -220,22 +220,24 @@ async def test_event_list_with_100k_rows_renders_and_moves():
         el.set_rows(_events(100_000))
         el.focus()
         await pilot.pause()
-        assert el.render_line(0).text.split()[:2] == ["frame", "time"]
-        assert el.render_line(1).text.split()[:3] == ["0", "0.0000", "step"]
+        # 60 columns: id, frame, time, kind, status, label (no room for score, place, note)
+        assert el.render_line(0).text.split() == ["id", "frame", "time", "s", "kind", "status",
+                                                  "label"]
+        assert el.render_line(1).text.split()[:4] == ["d000001", "0", "0.0000", "step"]
         await pilot.press("down", "down", "pagedown")
         assert el.cursor_row == 2 + 10
         await pilot.press("end")
         await pilot.pause()
         assert el.cursor_row == 99_999
         last = el.render_line(el.size.height - 1).text.split()
-        assert last[0] == str(3 * 99_999)
+        assert last[1] == str(3 * 99_999)
         await pilot.press("enter")
         await pilot.pause()
         assert app.chosen == ["d100000"]
         assert el.select_event("d000501")
         await pilot.pause()
         assert el.cursor_row == 500
-        assert el.render_line(1).text.split()[0] == "1500"
+        assert el.render_line(1).text.split()[1] == "1500"
         assert not el.select_event("d000000")
 
 
@@ -254,3 +256,23 @@ async def test_event_list_click_chooses_and_update_redraws():
         assert el.update_event(changed)
         await pilot.pause()
         assert el.render_line(5).text.split()[-2:] == ["accepted", "layer"]
+
+
+@sync
+async def test_event_list_columns_follow_the_width():
+    from reviewer.tui.eventlist import choose_columns
+
+    assert choose_columns(29) == ["id", "frame", "status"]  # the narrow list at 80 columns
+    wide = choose_columns(100)
+    assert wide == ["id", "frame", "time", "kind", "score", "status", "label", "place", "dur",
+                    "note"]
+    el = EventList()
+    app = One(el)
+    async with app.run_test(size=(100, 6)) as pilot:
+        ev = SimpleNamespace(event_id="m000002", frame=40, frame_end=44, time_s=0.1, kind="step",
+                             score=3.0, x=12.4, y=7.6, status="accepted", label="layer",
+                             note="edge of  the grid")
+        el.set_rows([ev])
+        await pilot.pause()
+        line = el.render_line(1).text
+        assert "12, 8" in line and " 5 " in line and line.rstrip().endswith("edge of the grid")

@@ -38,11 +38,8 @@ def register(subparsers) -> None:
 def review(movie, args: argparse.Namespace) -> int:
     """Open the app on a movie (path or Movie) with the review options of args; its exit code."""
     from reviewer.errors import BadInput
-    from reviewer.tui.keymap import load_keymap
-    from reviewer.tui.labels import load_labels
 
-    load_keymap(args.keymap)  # bad key maps and label sets are reported before anything opens
-    load_labels()
+    check_settings(args)
     if not sys.stdin.isatty() or not sys.stdout.isatty():
         raise BadInput(f"{getattr(args, 'movie', movie)}: the review needs a terminal "
                        "(stdin and stdout must be a TTY)")
@@ -68,6 +65,15 @@ def review(movie, args: argparse.Namespace) -> int:
         return 2
     code = app.return_code
     return 0 if code is None else int(code)
+
+
+def check_settings(args: argparse.Namespace) -> None:
+    """Bad key maps and label sets are reported before anything opens."""
+    from reviewer.tui.keymap import load_keymap
+    from reviewer.tui.labels import load_labels
+
+    load_keymap(args.keymap)
+    load_labels()
 
 
 def run(args: argparse.Namespace) -> int:

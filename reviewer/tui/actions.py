@@ -95,11 +95,22 @@ class ReviewActions(PlaybackMixin):
         self.go(ev.frame, jumped_to=ev.event_id)
 
     # ---- deciding -------------------------------------------------------------------------------
-    def _target(self):
-        ev = self.current_event()
-        if ev is None:
-            self.notify("no current event: jump to one (n, p) or mark one (m)", severity="warning")
-        return ev
+    def _target(self, what: str):
+        """The event at the viewed frame (app.event_at), or None with one line saying so.
+        Playback pauses first: a decision is about what is on the screen."""
+        self.pause()
+        if self._ev_dirty:
+            self.refresh_events()
+        eid = self.event_at(self.frame, prefer=self.current_id)
+        if eid is None:
+            self.current_id = None
+            self.update_status()
+            mark = self.keymap_key("mark")
+            self.say(f"no event at frame {self.frame} — {what}: nothing changed"
+                     + (f"; {mark} marks one" if mark else ""), warn=True)
+            return None
+        self.current_id = eid
+        return self.session.get(eid)
 
     def _after_change(self, decided: bool = True) -> None:
         self.refresh_events()
@@ -109,7 +120,7 @@ class ReviewActions(PlaybackMixin):
             self.show_frame()
 
     def _decide(self, what: str, method: str, *args) -> None:
-        if (ev := self._target()) is not None and \
+        if (ev := self._target(what)) is not None and \
                 self.write(what, getattr(self.session, method), ev.event_id, *args)[0]:
             self._after_change()
 
@@ -126,6 +137,7 @@ class ReviewActions(PlaybackMixin):
         self._decide(f"label {k}", "set_label", self.labels[k - 1])
 
     def action_mark(self) -> None:
+        self.pause()
         ok, ev = self.write("mark", self.session.add, self.frame)
         if not ok:
             return
@@ -133,7 +145,7 @@ class ReviewActions(PlaybackMixin):
         self._after_change(decided=False)
 
     def _nudge(self, delta: int) -> None:
-        if (ev := self._target()) is not None:
+        if (ev := self._target("move")) is not None:
             ok, ev = self.write("move", self.session.nudge, ev.event_id, delta)
             if not ok:
                 return
@@ -224,6 +236,18 @@ class ReviewActions(PlaybackMixin):
 
     def action_pan_down(self) -> None:
         self._view("pan", 0, 1)
+
+    def action_toggle_list(self) -> None:
+        self.eventlist.toggle_class("hidden")
+        if self.eventlist.has_class("hidden") and self.focused is self.eventlist:
+            self.set_focus(None)
+
+    def action_focus_list(self) -> None:
+        """Tab: the event list takes the arrow keys; Tab again gives them back to the frame."""
+        if self.focused is self.eventlist:
+            self.set_focus(None)
+        elif not self.eventlist.has_class("hidden"):
+            self.set_focus(self.eventlist)
 
     def action_timeline_in(self) -> None:
         self.timeline.zoom_in()

@@ -16,18 +16,20 @@ import numpy as np
 from textual.app import App, ComposeResult
 from textual.binding import Binding
 from textual.containers import Horizontal
-from textual.widgets import Footer, ProgressBar
+from textual.widgets import ProgressBar
 
 from reviewer.tui import keymap as km
 from reviewer.tui.actions import ReviewActions
 from reviewer.tui.guard import AlertLine, Banner, GuardMixin
 from reviewer.tui.labels import load_labels
 from reviewer.tui.scanning import ScanMixin
-from reviewer.tui.status import StatusLine
+from reviewer.tui.status import LONG_MOVIE_S, KeyBar, StatusLine
 
 MIN_SIZE = (80, 24)
+NARROW_BELOW = 110  # columns: below this the event list shrinks to a narrow column
 CONTEXT_FRAMES = 12  # frames averaged before / after for the what-changed and average views
 POSITION_SAVE_S = 2.0  # the position is journaled this long after the cursor stops
+VIEW_TOLERANCE = 2  # a decision key acts on an event within this many frames of the viewed one
 
 
 class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
@@ -53,6 +55,8 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
         self.frame = min(max(int(session.position), 0), movie.n_frames - 1)
         self.current_id: str | None = None
         self._ev_frames = np.empty(0, dtype=np.int64)
+        self._ev_ends = np.empty(0, dtype=np.int64)
+        self._max_span = 0
         self._ev_ids: list[str] = []
         self._ev_index: dict[str, int] = {}
         self._ev_dirty = True
@@ -77,7 +81,7 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
         yield ProgressBar(id="scanbar", total=self.movie.n_frames, show_eta=True)
         yield AlertLine(id="alert")
         yield StatusLine(id="status")
-        yield Footer()
+        yield KeyBar(self.keymap, id="keybar")
 
     def on_mount(self) -> None:
         self.set_keymap(self.keymap.overrides(self.DEFAULT_SPECS))
@@ -85,11 +89,16 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
         self.timeline = self.query_one("#timeline")
         self.eventlist = self.query_one("#events")
         self.status = self.query_one("#status", StatusLine)
+        fps = self.session.meta.get("fps") or getattr(self.movie, "fps", None)
+        self.status.period_s = 1.0 / fps if fps else None
+        last = self.session.time_of(self.movie.n_frames - 1)
+        self.status.long_movie = last is not None and last >= LONG_MOVIE_S
+        self.fit_layout()
         self.update_banner()
         self.clear_alert()
         self.start_scan()
         self.refresh_events()
-        self.current_id = self.event_near(self.frame)
+        self.current_id = self.event_at(self.frame)
         self.show_frame()
         for note in [*getattr(self.movie, "notices", []), *self.session.notices]:
             self.notify(note, severity="warning", timeout=8)
@@ -99,12 +108,22 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
         self.go(message.frame)
 
     def on_resize(self, event) -> None:
-        self.check_size()
+        self.fit_layout(event.size)  # self.size is still the old one here
+        self.check_size(event.size)
 
-    def check_size(self) -> None:
+    def fit_layout(self, size=None) -> None:
+        """Below NARROW_BELOW columns the event list becomes a narrow column (o hides it)."""
+        width = (size or self.size).width
+        with contextlib.suppress(Exception):  # before compose / after unmount: nothing to fit
+            self.query_one("#body").set_class(width < NARROW_BELOW, "narrow")
+
+    def check_size(self, size=None) -> None:
+        """Whenever the window is below MIN_SIZE, the too-small screen covers it (and closes
+        itself once the window is large enough again)."""
         from reviewer.tui.screens import TooSmallScreen
 
-        small = self.size.width < MIN_SIZE[0] or self.size.height < MIN_SIZE[1]
+        w, h = size or self.size
+        small = w < MIN_SIZE[0] or h < MIN_SIZE[1]
         if small and not any(isinstance(s, TooSmallScreen) for s in self.screen_stack):
             self.push_screen(TooSmallScreen(MIN_SIZE))  # it closes itself once big enough
 
@@ -113,6 +132,9 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
         """Re-read the session's events after a change; update the list and the timeline marks."""
         events = self.session.events
         self._ev_frames = np.fromiter((e.frame for e in events), dtype=np.int64, count=len(events))
+        self._ev_ends = np.fromiter((max(e.frame, e.frame_end if e.frame_end is not None else e.frame)
+                                     for e in events), dtype=np.int64, count=len(events))
+        self._max_span = int((self._ev_ends - self._ev_frames).max()) if len(events) else 0
         self._ev_ids = [e.event_id for e in events]
         self._ev_index = {eid: i for i, eid in enumerate(self._ev_ids)}
         if rows:
@@ -129,11 +151,25 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
         j = min(options, key=lambda j: abs(int(self._ev_frames[j]) - frame))
         return self._ev_ids[j]
 
-    def event_at(self, frame: int) -> str | None:
-        i = int(np.searchsorted(self._ev_frames, frame))
-        if i < len(self._ev_frames) and self._ev_frames[i] == frame:
-            return self._ev_ids[i]
-        return None
+    def event_at(self, frame: int, prefer: str | None = None) -> str | None:
+        """The event the viewer is looking at: its frame…frame_end span holds `frame`, or it is
+        within VIEW_TOLERANCE frames of it (`prefer` wins among several, else the closest)."""
+        if not len(self._ev_frames):
+            return None
+        tol = VIEW_TOLERANCE
+        lo = int(np.searchsorted(self._ev_frames, frame - tol - self._max_span, side="left"))
+        hi = int(np.searchsorted(self._ev_frames, frame + tol, side="right"))
+        best, best_d = None, tol + 1
+        for j in range(lo, hi):
+            start, end = int(self._ev_frames[j]), int(self._ev_ends[j])
+            d = 0 if start <= frame <= end else min(abs(frame - start), abs(frame - end))
+            if d > tol:
+                continue
+            if self._ev_ids[j] == prefer:
+                return prefer
+            if d < best_d:
+                best, best_d = self._ev_ids[j], d
+        return best
 
     def current_event(self):
         if self.current_id is None:
@@ -171,8 +207,7 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
                 before = after = None  # the neighbours are damaged: this frame alone
             self.frameview.show(image, before=before, after=after)
         ev = self.current_event()
-        on_it = ev is not None and ev.frame <= self.frame <= max(ev.frame, ev.frame_end or ev.frame)
-        if on_it and ev.x is not None and ev.y is not None:
+        if ev is not None and ev.x is not None and ev.y is not None:
             self.frameview.set_mark(ev.x, ev.y)
         else:
             self.frameview.set_mark(None)
@@ -191,14 +226,13 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
                 "play": self.play_text(), "scan": self.scan_text()}
 
     def go(self, frame: int, *, jumped_to: str | None = None) -> None:
-        """Move the cursor; the current event becomes the one jumped to, or the one at the frame."""
+        """Move the cursor; the current event becomes the one jumped to, else the one viewed at
+        the frame (None when there is none: decision keys then change nothing)."""
         self.frame = int(min(max(frame, 0), self.movie.n_frames - 1))
         if jumped_to is not None:
             self.current_id = jumped_to
         else:
-            here = self.event_at(self.frame)
-            if here is not None:
-                self.current_id = here
+            self.current_id = self.event_at(self.frame, prefer=self.current_id)
         self.show_frame()
         self.save_position_later()
 

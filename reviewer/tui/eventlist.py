@@ -19,8 +19,31 @@ from textual.message import Message
 from textual.scroll_view import ScrollView
 from textual.strip import Strip
 
-# (title, width) of the fixed-width columns; the label takes the rest
-COLUMNS = (("frame", 7), ("time s", 10), ("kind", 10), ("score", 6), ("status", 10))
+# name -> (title, width, right-aligned, index in row_cells); width 0: takes the room left
+COLUMNS = {
+    "id": ("id", 9, False, 6), "frame": ("frame", 7, True, 0), "time": ("time s", 10, True, 1),
+    "kind": ("kind", 10, False, 2), "score": ("score", 6, True, 3),
+    "status": ("status", 10, False, 4), "label": ("label", 12, False, 5),
+    "place": ("x, y", 12, True, 7), "dur": ("dur fr", 7, True, 8), "note": ("note", 0, False, 9),
+}
+SHOWN_ORDER = ("id", "frame", "time", "kind", "score", "status", "label", "place", "dur", "note")
+ALWAYS = ("id", "frame", "status")  # a narrow list shows these
+BY_NEED = ("time", "kind", "label", "note", "place", "dur", "score")  # added while they fit
+NOTE_MIN = 12
+
+
+def choose_columns(width: int) -> list[str]:
+    """The columns that fit `width`, in SHOWN_ORDER (the note, when shown, takes the rest)."""
+    chosen = list(ALWAYS)
+    used = sum(COLUMNS[c][1] for c in chosen)
+    for name in BY_NEED:
+        need = COLUMNS[name][1] or NOTE_MIN
+        if used + need <= width:
+            chosen.append(name)
+            used += need
+    return [c for c in SHOWN_ORDER if c in chosen]
+
+
 HEADER_STYLE = Style.parse("bold #c8d3de on #1b2430")
 ROW_STYLE = Style.parse("#c8d3de")
 CURSOR_STYLE = Style.parse("#ffffff on #2f5580")
@@ -28,6 +51,7 @@ STATUS_STYLES = {
     "candidate": Style.parse("#f0b43c"),
     "accepted": Style.parse("#52c987"),
     "rejected": Style.parse("#9a6a6a"),
+    "disputed": Style.parse("#d77bd7"),
 }
 
 
@@ -41,9 +65,20 @@ def _num(value: object, fmt: str) -> str:
     return "" if math.isnan(v) else format(v, fmt)
 
 
+def _place(event: object) -> str:
+    x, y = getattr(event, "x", None), getattr(event, "y", None)
+    return "" if x is None or y is None else f"{_num(x, '.0f')}, {_num(y, '.0f')}"
+
+
+def _duration(event: object) -> str:
+    frame, end = getattr(event, "frame", None), getattr(event, "frame_end", None)
+    return "" if frame is None or end is None else str(int(end) - int(frame) + 1)
+
+
 def row_cells(event: object) -> list[str]:
-    """The displayed text of one event: frame, time, kind, score, status, label. A decision whose
-    event a new scan of a changed movie no longer finds shows "·orph" after its kind."""
+    """The displayed text of one event: frame, time, kind, score, status, label, then id, place
+    (x, y), duration in frames, note. A decision whose event a new scan of a changed movie no
+    longer finds shows "·orph" after its kind."""
     frame = getattr(event, "frame", None)
     return [
         "" if frame is None else str(int(frame)),
@@ -53,6 +88,10 @@ def row_cells(event: object) -> list[str]:
         _num(getattr(event, "score", None), ".3g"),
         str(getattr(event, "status", "") or ""),
         str(getattr(event, "label", "") or ""),
+        str(getattr(event, "event_id", "") or ""),
+        _place(event),
+        _duration(event),
+        " ".join(str(getattr(event, "note", "") or "").split()),
     ]
 
 
@@ -86,6 +125,10 @@ class EventList(ScrollView, can_focus=True):
         self._index: dict[int, int] | None = None
         self._cursor = 0
         self._cache: dict[int, list[str]] = {}
+        self._cols_for = -1
+        self._cols_cache: list[tuple[int, int, bool, int]] = []
+        self._titles: list[str] = []
+        self._status_col: tuple[int, int, bool, int] | None = None
 
     # ----- data --------------------------------------------------------------------------------
     def set_rows(self, events: Sequence[object]) -> None:
@@ -169,17 +212,38 @@ class EventList(ScrollView, can_focus=True):
                 self.action_choose()
 
     # ----- drawing -----------------------------------------------------------------------------
+    def _columns_at(self, width: int) -> list[tuple[int, int, bool, int]]:
+        """(start, width, right-aligned, cell index) of each shown column at this width."""
+        if self._cols_for != width:
+            out, x = [], 0
+            names = choose_columns(width)
+            for name in names:
+                _, w, right, idx = COLUMNS[name]
+                w = w or max(width - x, 0)
+                out.append((x, w, right, idx))
+                x += w
+            self._cols_cache = out
+            self._cols_for = width
+            self._titles = [COLUMNS[n][0] for n in names]
+            self._status_col = next((c for c in out if c[3] == 4), None)
+        return self._cols_cache
+
     def _fit(self, cells: list[str], width: int) -> str:
-        parts = [c[:w - 1].rjust(w - 1) + " " if i in (0, 1, 3) else c[:w - 1].ljust(w)
-                 for i, ((_, w), c) in enumerate(zip(COLUMNS, cells, strict=False))]
-        text = "".join(parts) + cells[5]
-        return text[:width].ljust(width)
+        parts = []
+        for _, w, right, idx in self._columns_at(width):
+            c = cells[idx]
+            c = c[:w - 1] if len(c) >= w else c
+            parts.append(c.rjust(w - 1) + " " if right else c.ljust(w))
+        return "".join(parts)[:width].ljust(width)
 
     def render_line(self, y: int) -> Strip:
         width = self.scrollable_content_region.width
+        layout = self._columns_at(width)
         if y == 0:
-            return Strip([Segment(self._fit([t for t, _ in COLUMNS] + ["label"], width),
-                                  HEADER_STYLE)], width)
+            titles = [""] * 10
+            for (_, _, _, idx), title in zip(layout, self._titles, strict=True):
+                titles[idx] = title
+            return Strip([Segment(self._fit(titles, width), HEADER_STYLE)], width)
         row = round(self.scroll_y) + y - 1
         if row >= len(self._rows):
             return Strip.blank(width, ROW_STYLE)
@@ -191,11 +255,12 @@ class EventList(ScrollView, can_focus=True):
         text = self._fit(cells, width)
         if row == self._cursor:
             return Strip([Segment(text, CURSOR_STYLE)], width)
-        a = sum(w for _, w in COLUMNS[:4])
-        b = a + COLUMNS[4][1]
+        if self._status_col is None:
+            return Strip([Segment(text, ROW_STYLE)], width)
+        a, w = self._status_col[0], self._status_col[1]
         status = STATUS_STYLES.get(cells[4], ROW_STYLE)
-        segs = [Segment(text[:a], ROW_STYLE), Segment(text[a:b], status),
-                Segment(text[b:], ROW_STYLE)]
+        segs = [Segment(text[:a], ROW_STYLE), Segment(text[a:a + w], status),
+                Segment(text[a + w:], ROW_STYLE)]
         return Strip([s for s in segs if s.text], width)
 
     def on_resize(self) -> None:

@@ -68,10 +68,15 @@ class GuardMixin:
         banner.update("\n".join(lines))
         banner.display = bool(lines)
 
-    def alert(self, text: str) -> None:
+    def say(self, text: str, warn: bool = False) -> None:
+        """One line of feedback above the status line (what a key did, or why it did nothing)."""
+        self.alert(text, kind="warn" if warn else "info")
+
+    def alert(self, text: str, kind: str = "error") -> None:
         self.alert_text = one_line(text)
         line = self.query_one("#alert", AlertLine)
         line.update(Text(self.alert_text, no_wrap=True, overflow="ellipsis"))
+        line.set_classes(kind)
         line.display = True
         if self._alert_timer is not None:
             self._alert_timer.stop()

@@ -40,6 +40,7 @@ _MODIFIERS = ("ctrl", "alt", "meta", "super", "hyper", "shift")
 _NAMED = {k.value for k in Keys if "+" not in k.value and not k.value.startswith("<")}
 _RESERVED = {"escape": "escape is reserved for closing dialogs", "ctrl+c": "ctrl+c is reserved",
              "ctrl+q": "ctrl+q is reserved (it quits)"}
+PRIORITY_IDS = {"focus_list"}  # before the screen's own tab (focus_next)
 _LABEL_ID = re.compile(r"label_([1-9])")
 
 
@@ -242,4 +243,4 @@ def load_keymap(name_or_path: str | None = None, user_file: Path | None = None) 
 def make_bindings(specs: list[KeySpec] | tuple[KeySpec, ...]) -> list[Binding]:
     """Textual Bindings (with ids, so set_keymap can change them) for the given specs."""
     return [Binding(",".join(s.keys), s.action, s.footer or s.description, show=bool(s.footer),
-                    tooltip=s.description, id=s.id) for s in specs]
+                    tooltip=s.description, id=s.id, priority=s.id in PRIORITY_IDS) for s in specs]

@@ -34,6 +34,10 @@ class PlaybackMixin:
                             "`ssh -C` (compression) makes it smoother")
         self.update_status()
 
+    def pause(self) -> None:
+        if self.playing:
+            self.action_play()
+
     def _tick(self) -> None:
         step = SPEEDS[self.speed_index]
         if self.skip_idle and self.active_frames() is not None:

@@ -129,7 +129,7 @@ class ScanMixin:
                 added = added or 0
             self.refresh_events()
             if self.current_id is None:
-                self.current_id = self.event_near(self.frame)
+                self.current_id = self.event_at(self.frame)
             self.notify(f"scan finished: {added} candidate events")
         self.show_frame()
 

@@ -11,7 +11,7 @@ import numpy as np
 from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
-from textual.containers import Vertical, VerticalScroll
+from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Input, Static
 
@@ -97,40 +97,129 @@ class ConfirmScreen(ModalScreen[bool]):
         self.dismiss(yes)
 
 
+HELP_COLUMNS_FROM = 110  # terminal columns from which the help is laid out in two columns
+
+
+def _label_line(specs, labels: list[str]) -> tuple[str, str]:
+    """One line for the nine label keys: their keys, and which label each gives."""
+    keys = " ".join(s.display for s in specs)
+    if keys == "1 2 3 4 5 6 7 8 9":
+        keys = "1…9"
+    names = []
+    for s in specs:
+        k = int(s.id.rsplit("_", 1)[1])
+        if k <= len(labels):
+            names.append(f"{s.display} {labels[k - 1]}")
+    desc = ("label and accept: " + ", ".join(names)) if names else "label and accept (no labels)"
+    return keys, desc
+
+
+def screen_notes(keymap) -> list[tuple[str, str]]:
+    """What the help says about the screen itself (focus, timeline glyphs, the viewed event)."""
+    from reviewer.tui.app import VIEW_TOLERANCE
+    from reviewer.tui.timeline import MARKS
+
+    glyphs = " ".join(f"{g} {name if name != 'candidate' else 'pending'}"
+                      for name, (g, _) in MARKS.items())
+    tab = next((s.display for s in keymap.specs if s.id == "focus_list"), "tab")
+    return [
+        ("decisions", f"act on the event at this frame (its span or ±{VIEW_TOLERANCE} "
+                      "frames); elsewhere nothing changes"),
+        ("timeline", f"bars: change score, max per column; {glyphs} \u25b2 this frame"),
+        ("focus", f"{tab}: the event list takes ↑ ↓ PgUp PgDn Home End enter; {tab} again "
+                  "gives them back"),
+    ]
+
+
+def help_entries(keymap, labels: list[str]) -> list[tuple[str, list[tuple[str, str]]]]:
+    """(title, [(keys, what they do)]) per group of the key map, then the notes on the screen."""
+    groups = []
+    for group, specs in keymap.groups():
+        rows = []
+        label_specs = [s for s in specs if "{label}" in s.description]
+        for s in specs:
+            if s in label_specs:
+                if s is label_specs[0]:
+                    rows.append(_label_line(label_specs, labels))
+            else:
+                rows.append((s.display, s.description))
+        groups.append((group.capitalize(), rows))
+    groups.append(("The screen", screen_notes(keymap)))
+    return groups
+
+
+def _block(title: str, rows: list[tuple[str, str]], last: bool = False):
+    from rich.console import Group
+    from rich.table import Table
+
+    grid = Table.grid(padding=(0, 1))
+    grid.add_column(no_wrap=True, style="bold", min_width=12)
+    grid.add_column(ratio=1)
+    for keys, desc in rows:
+        grid.add_row(keys, desc)
+    return Group(Text(title, "bold underline"), grid, *([] if last else [Text("")]))
+
+
 def help_text(keymap, labels: list[str]) -> Text:
     """Every binding of the key map, by group, with its keys; generated from the key map data."""
     out = Text()
-    for group, specs in keymap.groups():
-        out.append(f"{group.capitalize()}\n", "bold underline")
-        for s in specs:
-            desc = s.description
-            if "{label}" in desc:
-                k = int(s.id.rsplit("_", 1)[1])
-                name = labels[k - 1] if k <= len(labels) else None
-                if name is None:
-                    desc = desc.replace("{label}", f"{k} (not in the label set)")
-                else:
-                    desc = desc.replace("{label}", repr(name))
-            out.append(f"  {s.display:<18}", "bold")
+    for title, rows in help_entries(keymap, labels):
+        out.append(f"{title}\n", "bold underline")
+        for keys, desc in rows:
+            out.append(f"  {keys:<14}", "bold")
             out.append(f"{desc}\n")
         out.append("\n")
     if keymap.sources:
         out.append("Key maps applied over the default: " + ", ".join(keymap.sources) + "\n", "dim")
-    out.append("escape closes a dialog", "dim")
     return out
 
 
+def split_columns(groups: list, n: int) -> list[list]:
+    """Groups in order into n columns of about equal height (rows + 2 lines a group)."""
+    if n <= 1:
+        return [groups]
+    heights = [len(rows) + 2 + sum(len(d) // 40 for _, d in rows) for _, rows in groups]
+    target = sum(heights) / n
+    cols: list[list] = [[]]
+    used = 0
+    for group, h in zip(groups, heights, strict=True):
+        if cols[-1] and used + h / 2 > target and len(cols) < n:
+            cols.append([])
+            used = 0
+        cols[-1].append(group)
+        used += h
+    return cols
+
+
 class HelpScreen(ModalScreen[None]):
+    """The key map, in two columns when the terminal is wide; focused at once, so the arrow keys
+    scroll it."""
+
     BINDINGS = [Binding("escape,q,question_mark", "close", "close")]
+    AUTO_FOCUS = "#help"
 
     def __init__(self, keymap, labels: list[str]) -> None:
         super().__init__()
+        self.groups = help_entries(keymap, labels)
         self.text = help_text(keymap, labels)
+        self.sources = keymap.sources
 
     def compose(self) -> ComposeResult:
-        with VerticalScroll(classes="dialog help", id="help"):
-            yield Static("Keys", classes="title")
-            yield Static(self.text, id="help-text")
+        from rich.console import Group
+
+        wide = self.app.size.width >= HELP_COLUMNS_FROM
+        scroll = VerticalScroll(classes="dialog help" + (" wide" if wide else ""), id="help")
+        scroll.border_title = "Keys"
+        scroll.border_subtitle = "↑ ↓ PgUp PgDn Home End scroll · escape closes"
+        with scroll:
+            with Horizontal(id="help-columns"):
+                for column in split_columns(self.groups, 2 if wide else 1):
+                    yield Static(Group(*(_block(t, rows, i == len(column) - 1)
+                                         for i, (t, rows) in enumerate(column))),
+                                 classes="help-column")
+            if self.sources:
+                yield Static(Text("Key maps applied over the default: " + ", ".join(self.sources),
+                                  "dim"))
 
     def action_close(self) -> None:
         self.dismiss(None)
@@ -148,16 +237,16 @@ class TooSmallScreen(ModalScreen[None]):
     def compose(self) -> ComposeResult:
         yield Static(self._message(), id="too-small")
 
-    def _message(self) -> str:
-        w, h = self.app.size
+    def _message(self, size=None) -> str:
+        w, h = size or self.app.size
         mw, mh = self.minimum
         return (f"The terminal is {w}×{h}; the review needs at least {mw}×{mh}.\n"
                 "Enlarge the window or the tmux pane to continue (q saves and quits).")
 
-    def on_resize(self) -> None:
-        w, h = self.app.size
+    def on_resize(self, event) -> None:
+        w, h = event.size
         if w >= self.minimum[0] and h >= self.minimum[1]:
             if self.is_current:
                 self.dismiss(None)
         else:
-            self.query_one("#too-small", Static).update(self._message())
+            self.query_one("#too-small", Static).update(self._message(event.size))

@@ -14,6 +14,7 @@ from textual.widget import Widget
 BARS = " \u2581\u2582\u2583\u2584\u2585\u2586\u2587\u2588"  # eighths, lower one eighth .. full block
 # status -> (glyph, colour); earlier entries win when several events share a column
 MARKS = {
+    "disputed": ("\u25c8", "#d77bd7"),  # diamond with a dot, magenta: reviewers disagreed (merge)
     "candidate": ("\u25c7", "#f0b43c"),  # white diamond, amber: still to decide
     "accepted": ("\u25c6", "#52c987"),  # black diamond, green
     "rejected": ("\u00d7", "#b05a5a"),  # multiplication sign, muted red
