@@ -10,7 +10,7 @@ from pathlib import Path
 import pandas as pd
 
 from reviewer.commands._common import add_movie_arguments, open_checked, positive_float
-from reviewer.errors import printable
+from reviewer.errors import BadInput, printable
 from reviewer.outputs import guard, movie_files, opened, reason, replacing
 
 
@@ -114,6 +114,11 @@ def run(args: argparse.Namespace) -> int:
             except ScanCancelled:
                 bar.close("scan cancelled; nothing was written")
                 return 130
+            except OSError as exc:  # the features are written into the cache as they are made
+                bar.close()
+                raise BadInput(f"{printable(str(folder))}: cannot keep the scan's features "
+                               f"({reason(exc)}); nothing was written (free space, or set "
+                               "REVIEWER_CACHE_DIR to another folder)") from exc
             bar.close()
             how = f"scanned {movie.n_frames} frames in {meta.get('seconds', 0):.1f} s"
         candidates = propose(features, settings, movie.timing)
