@@ -11,9 +11,9 @@ from scipy import stats
 
 from reviewer.kinetics import summarise
 from reviewer.kinetics.groups import by_region
-from reviewer.kinetics.reading import poisson_cv_range
 from reviewer.kinetics.spacings import SPACINGS, layer_height
 from reviewer.kinetics.stats import gamma_shape_ci95, garwood_ci95
+from reviewer.kinetics.verdict import poisson_cv_range
 
 # Exact 95 % Poisson confidence limits for an observed count (Garwood 1936, Biometrika 28:437;
 # tabulated e.g. in Gehrels 1986, ApJ 303:336 — values from memory), to 3-4 significant digits.

@@ -14,7 +14,7 @@ import pandas as pd
 
 from reviewer.detect.drift import explained_shift, phase_shift
 from reviewer.detect.pulse import null_pulse_tests, pulse_chunk
-from reviewer.detect.reading import read_ahead
+from reviewer.detect.readahead import read_ahead
 from reviewer.detect.reduce import Scratch, bin_block
 from reviewer.detect.scoring import noise_gain, noise_sd, score_bands
 from reviewer.detect.settings import DetectSettings

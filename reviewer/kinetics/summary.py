@@ -6,7 +6,7 @@ import math
 
 import numpy as np
 
-from reviewer.kinetics import censored, frames, reading, renewal, stats, trend
+from reviewer.kinetics import censored, frames, renewal, stats, trend, verdict
 
 BOOT_RESAMPLES = 9_999  # bootstrap resamples for the CV interval
 GOF_SAMPLES = 9_999     # parametric-bootstrap samples for the exponential goodness of fit
@@ -44,7 +44,7 @@ def _beyond_renewal(out: dict, t: np.ndarray, x: np.ndarray, seed: int,
                     frame_s: float | None) -> None:
     """Trend, change of rate, gaps at either end, serial correlation, shortest wait (new keys)."""
     k, span = x.size, out["span_s"]
-    out["alpha"] = reading.ALPHA
+    out["alpha"] = verdict.ALPHA
     out["interval_min_s"] = float(np.min(x))
     out["interval_min_frames"] = _num(float(np.min(x)) / frame_s) if frame_s else None
     out["frame_s"] = _num(frame_s) if frame_s else None
@@ -129,9 +129,9 @@ def summarise(times_s, duration_s: float | None = None, layer_nm: float | None =
         out["interval_cv_ci95"] = _pair(lo, hi)
         out["interval_cv_ci_method"] = f"bootstrap {method}, {n_boot} resamples, seed {seed}"
     if k >= 2 and sd is not None:
-        band = reading.poisson_cv_range(k)
+        band = verdict.poisson_cv_range(k)
         out["poisson_cv_range95"] = list(band) if band else None
-        out["interval_cv_p_poisson"] = reading.poisson_cv_p(k, cv)
+        out["interval_cv_p_poisson"] = verdict.poisson_cv_p(k, cv)
     zeros = int(np.sum(x == 0))
     spread = cv is not None and cv > MIN_CV  # waits that all agree leave nothing to fit
     if k >= 2 and zeros == 0 and spread:
@@ -151,7 +151,7 @@ def summarise(times_s, duration_s: float | None = None, layer_nm: float | None =
     censored.add_censored(out, x)
     frames.add_frames(out, x, frame_s, seed, n_gof, budget)
     _beyond_renewal(out, t, x, seed, frame_s)
-    out["reading"] = reading.sentence(out)
-    out["pitfalls"] = reading.pitfalls(out, frame_s=frame_s, zero_intervals=zeros,
+    out["reading"] = verdict.sentence(out)
+    out["pitfalls"] = verdict.pitfalls(out, frame_s=frame_s, zero_intervals=zeros,
                                        multi_frame_events=multi_frame_events)
     return out

@@ -10,8 +10,8 @@ import numpy as np
 import pytest
 
 from reviewer.kinetics import summarise
-from reviewer.kinetics.reading import ALPHA, poisson_cv_p, poisson_cv_range, weighed_tests
 from reviewer.kinetics.trend import gap_p, lag1, laplace, onset_ci95, trend_tests
+from reviewer.kinetics.verdict import ALPHA, poisson_cv_p, poisson_cv_range, weighed_tests
 
 HEAVY = os.environ.get("REVIEWER_HEAVY") == "1"
 # names of causes a spread of waits cannot identify (our list; common practice, no source)
