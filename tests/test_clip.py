@@ -121,3 +121,18 @@ def test_lengths():
     assert format_length(5e-9) == "5 nm" and format_length(2e-6) == "2 µm"
     with pytest.raises(BadInput):
         parse_length("3 furlongs")
+
+
+def test_scale_bar_from_the_pixel_size_stored_in_an_mrc_file(tmp_path):
+    # mrcfile writes the voxel size (Å) into the MRC2014 header (Cheng et al. 2015); the bar is a
+    # round length drawn at length / pixel size x zoom pixels
+    mrcfile = pytest.importorskip("mrcfile")
+    path = tmp_path / "stack.mrc"
+    with mrcfile.new(path) as m:
+        m.set_data(np.random.default_rng(0).poisson(20, (30, 64, 64)).astype(np.int16))
+        m.voxel_size = 2.5  # Å = 0.25 nm
+    r = run("clip", path, "--frame", 10, "--fps", 10, "--zoom", 4, "-o", tmp_path / "c.png")
+    assert r.returncode == 0, r.stderr
+    bar = json.loads(r.stdout)["scale_bar"]
+    assert bar["length_m"] == pytest.approx(2e-9)  # a fifth of 64 x 0.25 nm = 3.2 nm -> 2 nm
+    assert bar["pixels"] == round(2e-9 / 0.25e-9 * 4)

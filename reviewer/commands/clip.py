@@ -36,7 +36,8 @@ def register(subparsers) -> None:
     p.add_argument("--zoom", type=int, default=None, metavar="K",
                    help="enlarge K times, nearest neighbour (default: about 320 px wide)")
     p.add_argument("--pixel-size", default=None, metavar="LENGTH",
-                   help="size of one movie pixel, e.g. 0.05nm, 0.5A, 0.01um: draws a scale bar")
+                   help="size of one movie pixel, e.g. 0.05nm, 0.5A, 0.01um: draws a scale bar "
+                        "(default: the pixel size stored with the movie, if any)")
     p.add_argument("--playback-fps", type=float, default=10.0, metavar="F",
                    help="frames per second of the animation (default 10)")
     p.add_argument("-o", "--output", required=True, metavar="OUT",
@@ -117,6 +118,8 @@ def run(args: argparse.Namespace) -> int:
             where = _from_session(movie, args.event)
         window = Window.around(movie, where["frame"], args.before, args.after,
                                _number(where["x"]), _number(where["y"]), crop)
+        if pixel_m is None and getattr(movie, "pixel_size_nm", None):
+            pixel_m = movie.pixel_size_nm * 1e-9  # stored with the movie (MRC voxel size, ...)
         zoom = args.zoom or default_zoom(window.width)
         if not 1 <= zoom <= 16:
             raise BadInput(f"--zoom {zoom}: between 1 and 16")
