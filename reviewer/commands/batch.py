@@ -23,8 +23,10 @@ def register(subparsers) -> None:
     p.add_argument("-o", "--output", metavar="SUMMARY.csv", default=None,
                    help="the summary (default: batch-<UTC time>.csv in the current folder)")
     p.add_argument("--json", action="store_true", help="write the summary as JSON instead of CSV")
+    p.add_argument("--false-alarms", type=positive_float, default=0.05, metavar="N",
+                   help="expected false alarms per movie, as for `reviewer scan` (default 0.05)")
     p.add_argument("--sensitivity", type=positive_float, default=1.0,
-                   help="as for `reviewer scan`")
+                   help="deprecated, as for `reviewer scan`")
     p.add_argument("--fps", type=positive_float, default=None,
                    help="frames per second for every movie (overrides stored timing)")
     p.add_argument("--force", action="store_true", help="scan again even where a cached scan exists")
@@ -70,7 +72,8 @@ def run(args: argparse.Namespace) -> int:
     stamp = time.strftime("%Y%m%dT%H%M%SZ", time.gmtime())
     out = Path(args.output) if args.output else Path(f"batch-{stamp}.{'json' if args.json else 'csv'}")
     guard([out], [pair for m in movies for pair in movie_files(given=m)])
-    settings = DetectSettings(sensitivity=args.sensitivity).to_dict()
+    settings = DetectSettings(sensitivity=args.sensitivity,
+                               false_alarms=args.false_alarms).to_dict()
     choice = engine.EngineChoice(args.workers, args.scheduler, args.cluster,
                                  {"queue": args.queue, "cores": args.cores, "memory": args.memory,
                                   "walltime": args.walltime, "jobs": args.jobs})
