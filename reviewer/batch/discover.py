@@ -7,9 +7,6 @@ from pathlib import Path
 
 from reviewer.errors import BadInput
 
-MOVIE_SUFFIXES = (".tif", ".tiff", ".btf", ".tf8", ".tf2", ".npy", ".h5", ".hdf5", ".hdf", ".he5",
-                  ".raw", ".bin", ".dat", ".zarr", ".mrc", ".mrcs", ".npz", ".mp4", ".avi",
-                  ".mkv", ".mov")
 LIST_SUFFIXES = (".txt", ".lst", ".list")
 FRAME_SUFFIXES = (".png", ".tif", ".tiff")
 # what our own commands write beside a movie, never a movie itself
@@ -62,7 +59,10 @@ def _is_movie_file(path: Path) -> bool:
     suffix = path.suffix.lower()
     if suffix == ".json":  # a raw descriptor names its data file, which is listed itself
         return False
-    return suffix in MOVIE_SUFFIXES and not _derived(path)
+    from reviewer.movie.mrc import is_mrc
+    from reviewer.movie.open import FILE_SUFFIXES
+
+    return (suffix in FILE_SUFFIXES or is_mrc(path)) and not _derived(path)
 
 
 def _from_list(path: Path) -> list[Path]:

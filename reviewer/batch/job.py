@@ -51,8 +51,10 @@ def scan_path(path: str, settings: dict, force: bool = False, fps: float | None 
 def _scan(p: Path, settings_dict: dict, force: bool, fps: float | None) -> dict:
     from reviewer.commands.scan import candidate_rows
     from reviewer.detect import DetectSettings, compute_features, load_scan, propose, save_scan
+    from reviewer.detect.cache import reusable
     from reviewer.detect.stream import ScanResult
     from reviewer.movie import open_movie
+    from reviewer.outputs import guard, movie_files
     from reviewer.paths import cache_dir, output_beside
     from reviewer.store.table import write_csv
 
@@ -61,13 +63,12 @@ def _scan(p: Path, settings_dict: dict, force: bool, fps: float | None) -> dict:
     try:
         folder = cache_dir(movie.fingerprint) / "scan"
         out = output_beside(p, ".candidates.csv", cache_dir(movie.fingerprint))
+        guard([out], movie_files(movie, p))  # as `reviewer scan` checks its output
         cached = None if force else load_scan(folder)
-        if cached is not None and cached.settings and \
-                DetectSettings.from_dict(cached.settings).scan_key() == settings.scan_key() and \
-                len(cached.features["score"]) == movie.n_frames and out.exists():
+        if reusable(cached, settings, movie.n_frames) and out.exists():
             status, features, meta = "skipped", cached.features, cached.meta
-        else:
-            features, meta = compute_features(movie, settings)
+        else:  # features memory-mapped into the cache as they are made, as `reviewer scan` does
+            features, meta = compute_features(movie, settings, workdir=folder)
             status = "done"
         candidates = propose(features, settings, movie.timing)
         if status == "done":

@@ -97,3 +97,15 @@ def open_checked(args: argparse.Namespace, notices: bool = True):
     if notices:
         show_notices(movie)
     return movie
+
+
+def seed_from_scan(session, movie) -> None:
+    """A movie scanned but never reviewed: its detector candidates into `session` (in memory only
+    for a read-only session), as export and clip read them."""
+    from reviewer.detect import load_scan
+    from reviewer.paths import cache_dir
+
+    result = load_scan(cache_dir(movie.fingerprint, create=False) / "scan")
+    if result is not None:
+        session.meta.setdefault("detector", result.settings)
+        session.seed(result.candidates)

@@ -62,13 +62,13 @@ def _from_table(path: str, event_id: str) -> dict:
 
 
 def _from_session(movie, event_id: str) -> dict:
-    from reviewer.commands.export import _seed_from_scan
+    from reviewer.commands._common import seed_from_scan
     from reviewer.store.session import Session
 
     session = Session.open(movie.path, movie.fingerprint, readonly=True,
                            meta={"frames": movie.n_frames, "fps": movie.timing.fps})
     if not session.events:
-        _seed_from_scan(session, movie)
+        seed_from_scan(session, movie)
     for e in session.events:
         if e.event_id == event_id:
             return {"frame": int(e.frame), "x": e.x, "y": e.y}

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import argparse
 import json
-import sys
 
 
 def register(subparsers) -> None:
@@ -39,17 +38,9 @@ def summary(result) -> dict:
 
 
 def run(args: argparse.Namespace) -> int:
-    from reviewer.errors import BadInput
-    from reviewer.store.agreement import agreement, read_review, same_movie
+    from reviewer.store.agreement import read_pair
 
-    if args.tolerance < 0:
-        raise BadInput(f"--tolerance {args.tolerance}: 0 frames or more")
-    a, ia = read_review(args.a)
-    b, ib = read_review(args.b)
-    warning = same_movie(args.a, ia, args.b, ib)
-    if warning:
-        print(f"reviewer: warning: {warning}", file=sys.stderr)
-    result = agreement(a, b, args.tolerance)
+    result, _, _ = read_pair(args.a, args.b, args.tolerance)
     out = summary(result)
     if args.json:
         print(json.dumps(out, allow_nan=False))

@@ -6,7 +6,7 @@ import argparse
 import sys
 from pathlib import Path
 
-from reviewer.commands._common import add_movie_arguments, open_checked
+from reviewer.commands._common import add_movie_arguments, open_checked, seed_from_scan
 from reviewer.errors import printable
 from reviewer.paths import output_beside
 from reviewer.store.export import export_events, parse_statuses
@@ -30,19 +30,6 @@ def register(subparsers) -> None:
     p.set_defaults(func=run)
 
 
-def _seed_from_scan(session, movie) -> None:
-    """A movie scanned but never reviewed: export the detector's candidates (in memory only)."""
-    try:
-        from reviewer.detect import load_scan
-        from reviewer.paths import cache_dir
-    except ImportError:
-        return
-    result = load_scan(cache_dir(movie.fingerprint, create=False) / "scan")
-    if result is not None:
-        session.meta.setdefault("detector", result.settings)
-        session.seed(result.candidates)
-
-
 def run(args: argparse.Namespace) -> int:
     from reviewer.store.session import Session
 
@@ -57,7 +44,7 @@ def run(args: argparse.Namespace) -> int:
         for note in session.notices:
             print(f"reviewer: {printable(str(note))}", file=sys.stderr)
         if not session.seeded and not session.events:
-            _seed_from_scan(session, movie)
+            seed_from_scan(session, movie)
         out = Path(args.output) if args.output else output_beside(movie.path, ".events.csv", session.folder)
         try:
             csv_path, json_path = export_events(session, out, statuses, movie=movie)

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import argparse
-import sys
 from pathlib import Path
 
 
@@ -25,7 +24,7 @@ def register(subparsers) -> None:
 def run(args: argparse.Namespace) -> int:
     import reviewer
     from reviewer.outputs import guard, json_bytes, opened, replacing, table_files
-    from reviewer.store.agreement import agreement, merged_rows, read_review, same_movie
+    from reviewer.store.agreement import merged_rows, read_pair
     from reviewer.store.events import utc_now
     from reviewer.store.export import sidecar_path
     from reviewer.store.table import write_csv
@@ -33,12 +32,7 @@ def run(args: argparse.Namespace) -> int:
     out = Path(args.output)
     side = sidecar_path(out)
     guard([out, (side, f"sidecar of {out.name}")], table_files(args.a) + table_files(args.b))
-    a, ia = read_review(args.a)
-    b, ib = read_review(args.b)
-    warning = same_movie(args.a, ia, args.b, ib)
-    if warning:
-        print(f"reviewer: warning: {warning}", file=sys.stderr)
-    result = agreement(a, b, args.tolerance)
+    result, ia, ib = read_pair(args.a, args.b, args.tolerance)
     rows = merged_rows(result)
     disputed = sum(r["status"] == "disputed" for r in rows)
     info = {"program": "reviewer", "version": reviewer.__version__, "merged_at": utc_now(),

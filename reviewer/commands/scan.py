@@ -83,6 +83,7 @@ def run(args: argparse.Namespace) -> int:
         propose,
         save_scan,
     )
+    from reviewer.detect.cache import reusable
     from reviewer.paths import output_beside
     from reviewer.progress import Progress
     from reviewer.store.table import write_csv
@@ -97,9 +98,7 @@ def run(args: argparse.Namespace) -> int:
         guard([out], movie_files(movie, args.movie)
               + ([("the scan cache", folder)] if folder is not None else []))
         cached = None if args.force or folder is None else load_scan(folder)
-        if cached is not None and cached.settings and \
-                DetectSettings.from_dict(cached.settings).scan_key() == settings.scan_key() and \
-                len(cached.features["score"]) == movie.n_frames:
+        if reusable(cached, settings, movie.n_frames):
             features, meta, how = cached.features, cached.meta, "reused the cached scan"
         else:
             bar = Progress(movie.n_frames, label="frames")

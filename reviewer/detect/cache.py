@@ -84,6 +84,15 @@ def save_scan(result: ScanResult, folder: str | os.PathLike) -> Path:
     return folder
 
 
+def reusable(cached: ScanResult | None, settings, n_frames: int) -> bool:
+    """A cached scan made with the same scan settings (`DetectSettings.scan_key`) over all frames."""
+    from reviewer.detect.settings import DetectSettings
+
+    return (cached is not None and bool(cached.settings)
+            and DetectSettings.from_dict(cached.settings).scan_key() == settings.scan_key()
+            and len(cached.features["score"]) == n_frames)
+
+
 def load_scan(folder: str | os.PathLike) -> ScanResult | None:
     folder = Path(folder)
     try:

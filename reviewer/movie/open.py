@@ -26,6 +26,8 @@ from reviewer.movie.timing import resolve
 from reviewer.movie.video import VIDEO_SUFFIXES, open_video
 
 TIFF_SUFFIXES = (".tif", ".tiff", ".btf", ".tf8", ".tf2")
+# file names a reader here claims by their suffix (MRC files: see is_mrc; Zarr stores are folders)
+FILE_SUFFIXES = TIFF_SUFFIXES + H5_SUFFIXES + RAW_SUFFIXES + VIDEO_SUFFIXES + (".npy", ".npz")
 KNOWN = ("TIFF, .npy, .npz, .png, HDF5, MRC, video, raw + .json descriptor, a Zarr store or a "
          "folder of PNG/TIFF frames; many more with the optional extra 'formats' (RosettaSciIO)")
 

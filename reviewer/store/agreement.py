@@ -219,3 +219,18 @@ def same_movie(a_path: str, a_info: dict, b_path: str, b_info: dict) -> str | No
     if not (fa and fb):
         return "a provenance file (.json) is missing: cannot confirm both tables are of one movie"
     return None
+
+
+def read_pair(a_path: str, b_path: str, tolerance: int) -> tuple[Agreement, dict, dict]:
+    """Two exported reviews of one movie, matched: (agreement, A's sidecar, B's sidecar). A missing
+    sidecar is a warning on stderr; sidecars naming different movies are BadInput."""
+    import sys
+
+    if tolerance < 0:
+        raise BadInput(f"--tolerance {tolerance}: 0 frames or more")
+    a, ia = read_review(a_path)
+    b, ib = read_review(b_path)
+    warning = same_movie(a_path, ia, b_path, ib)
+    if warning:
+        print(f"reviewer: warning: {warning}", file=sys.stderr)
+    return agreement(a, b, tolerance), ia, ib
