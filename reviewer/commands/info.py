@@ -28,7 +28,8 @@ def _size(n: int | None) -> str:
 
 
 def text_lines(d: dict) -> list[str]:
-    fps = f"{d['fps']:g}" if d["fps"] else "unknown"
+    fps = (f"{d['fps']:g}" if d["fps"] else
+           f"per-frame times, median {d['median_fps']:.6g}" if d.get("median_fps") else "unknown")
     dur = f"{d['duration_s']:.6g} s" if d["duration_s"] is not None else "unknown"
     timing = d["timing_source"] if d["timing_source"] != "unknown" else "none stored (use --fps)"
     return [f"movie     {d['path']}",

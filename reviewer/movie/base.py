@@ -183,6 +183,16 @@ class Movie(ABC):
     def __exit__(self, *exc: object) -> None:
         self.close()
 
+    def _median_fps(self) -> float | None:
+        """The constant rate, or 1 / the median period of per-frame times (variable frame rate)."""
+        if self.fps:
+            return self.fps
+        times = self.timing.times_s
+        if times is None or len(times) < 2:
+            return None
+        period = float(np.median(np.diff(times)))
+        return 1.0 / period if period > 0 else None
+
     def describe(self) -> dict:
         """The facts `reviewer info` prints."""
         try:
@@ -197,6 +207,7 @@ class Movie(ABC):
             "width": self.width,
             "dtype": str(np.dtype(self.dtype)),
             "fps": self.fps,
+            "median_fps": self._median_fps(),
             "duration_s": self.duration_s,
             "timing_source": self.timing.source,
             "file_size": size,
