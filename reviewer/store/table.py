@@ -38,7 +38,7 @@ def _cell(column: str, value: object) -> str:
             return ""
         if column in ("x", "y", "score"):
             return f"{value:.6g}" if column == "score" else f"{value:.2f}"
-        return repr(value)
+        return repr(float(value))  # np.float64 is a float whose repr names numpy
     text = str(value)
     return neutralise(text) if column in _TEXT else text
 
