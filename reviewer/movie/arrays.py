@@ -161,7 +161,7 @@ def _with_singleton(label: str, shape: tuple[int, ...], kept: list[int]) -> str:
     return "".join(out)
 
 
-def _scalar(value) -> float | None:
+def positive_number(value) -> float | None:
     """A positive finite number from an attribute value (scalar, 1-element array, numeric text)."""
     if isinstance(value, bytes):
         value = value.decode("utf-8", "replace")
@@ -180,12 +180,12 @@ def attribute_timing(attr_sets: list[tuple[str, Mapping]]) -> Timing | None:
         lower = {str(k).lower(): k for k in attrs}
         for name in RATE_KEYS:
             if name in lower:
-                fps = _scalar(attrs[lower[name]])
+                fps = positive_number(attrs[lower[name]])
                 if fps:
                     return Timing(fps=fps, source=f"{where} attribute {lower[name]}")
         for name in INTERVAL_KEYS:
             if name in lower:
-                step = _scalar(attrs[lower[name]])
+                step = positive_number(attrs[lower[name]])
                 unit = next((attrs[lower[u]] for u in ("unit", "units", "time_unit", f"{name}_unit")
                              if u in lower), "s")
                 if isinstance(unit, bytes):

@@ -27,6 +27,7 @@ from reviewer.movie.arrays import (
 )
 from reviewer.movie.base import Movie, Timing, companions, fingerprint_file
 from reviewer.movie.npy import DatasetMovie, frames_layout
+from reviewer.movie.scale import attribute_pixel_size_nm
 from reviewer.movie.timing import _seconds
 
 # OME-NGFF space units (UCUM names the specification lists) in nanometres
@@ -189,6 +190,7 @@ def open_zarr(path: Path, dataset: str | None = None, axes: str | None = None,
                     and k.rsplit("/", 1)[:-1] == key.rsplit("/", 1)[:-1]}
         timing = (attribute_timing([(f"array {key}", arr.attrs), ("store", getattr(root, "attrs", {}))])
                   or time_array_timing(siblings, data.shape[0]) or Timing())
+        pixel_nm = attribute_pixel_size_nm([arr.attrs, getattr(root, "attrs", {})])
         kind = "Zarr array"
         if key != "/":
             selection["dataset"] = key

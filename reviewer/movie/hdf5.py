@@ -19,6 +19,7 @@ from reviewer.movie.arrays import (
 from reviewer.movie.base import Movie
 from reviewer.movie.extra import Lifted, need_module
 from reviewer.movie.npy import DatasetMovie, frames_layout
+from reviewer.movie.scale import attribute_pixel_size_nm
 
 H5_SUFFIXES = (".h5", ".hdf5", ".hdf", ".he5", ".nxs")
 
@@ -109,4 +110,5 @@ def _open(h5py, f, path: Path, fingerprint: str, dataset: str | None, axes: str 
     movie = DatasetMovie(data, path, layout=layout, rgb=rgb, timing=timing, fingerprint=fingerprint,
                          notices=notices, closer=f.close)
     movie.axes, movie.selection = stored_axes, {"dataset": key}
+    movie.pixel_size_nm = attribute_pixel_size_nm([ds.attrs, *(a for _, a in groups)])
     return movie

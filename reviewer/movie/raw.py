@@ -5,7 +5,8 @@ either file may be given. Keys::
 
     {"shape": [frames, height, width]  (or "height" + "width", frames optional: from the file size),
      "dtype": "uint16", "byte_order": "little" | "big", "header_bytes": 0, "fps": 400.0,
-     "file": "run7.raw"  (optional, relative to the descriptor)}
+     "file": "run7.raw"  (optional, relative to the descriptor),
+     "pixel_size": 0.05, "pixel_unit": "nm"  (optional; the unit defaults to nm)}
 """
 
 from __future__ import annotations
@@ -20,6 +21,7 @@ from reviewer.errors import BadInput
 from reviewer.movie.base import Movie, Timing
 from reviewer.movie.offsets import OffsetMovie, even_offsets
 from reviewer.movie.pixels import output_dtype
+from reviewer.movie.scale import to_nm
 
 RAW_SUFFIXES = (".raw", ".bin", ".dat")
 
@@ -85,5 +87,11 @@ def open_raw(path: Path, fingerprint_of) -> Movie:
     timing = Timing(fps=fps, source=f"descriptor {desc_path.name}") if fps else Timing()
     offsets = even_offsets(header, n, frame_bytes, data_path)
     layout = f"raw binary + JSON descriptor, {n} frames {h}x{w} {dtype.name} ({desc.get('byte_order', 'little')}-endian)"
-    return OffsetMovie(data_path, offsets, (h, w), dtype, out, layout=layout, timing=timing,
-                       fingerprint=fingerprint_of(data_path, also=(desc_path,)), notices=notices)
+    movie = OffsetMovie(data_path, offsets, (h, w), dtype, out, layout=layout, timing=timing,
+                        fingerprint=fingerprint_of(data_path, also=(desc_path,)), notices=notices)
+    if desc.get("pixel_size") is not None:
+        movie.pixel_size_nm = to_nm(desc["pixel_size"], desc.get("pixel_unit", "nm"))
+        if movie.pixel_size_nm is None:
+            raise BadInput(f"{desc_path}: pixel_size {desc['pixel_size']!r} "
+                           f"{desc.get('pixel_unit', 'nm')!r} is not a length")
+    return movie

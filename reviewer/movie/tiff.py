@@ -24,6 +24,7 @@ from reviewer.movie.base import Movie, Timing
 from reviewer.movie.offsets import OffsetMovie, even_offsets
 from reviewer.movie.pageindex import frame_index
 from reviewer.movie.pixels import RGB_NOTICE, output_dtype, to_frames
+from reviewer.movie.scale import imagej_pixel_size_nm, ome_pixel_size_nm
 from reviewer.movie.tiffifd import (
     PageInfo,
     numpy_dtype,
@@ -86,9 +87,11 @@ def _metadata(path: Path) -> tuple[tifffile.TiffFile | None, dict]:
         with quiet_tifffile():
             tif = tifffile.TiffFile(path)
             page = tif.pages.first
+            resolution = page.tags.get("XResolution")
             meta = {"imagej": tif.imagej_metadata if tif.is_imagej else None,
                     "ome": tif.ome_metadata if tif.is_ome else None,
-                    "shaped": page.description if page.is_shaped else None}
+                    "shaped": page.description if page.is_shaped else None,
+                    "x_resolution": resolution.value if resolution is not None else None}
     except Exception:  # noqa: BLE001 - tifffile cannot parse it; our own reader may still
         return None, {}
     return tif, meta
@@ -280,6 +283,8 @@ def _open(path: Path, fd: int, size: int, fingerprint: str, show_progress: bool,
         notices.append("a single 2-D image: read as a 1-frame movie")
     movie_kw.update(layout=layout, timing=_stored_timing(meta, n, timing_planes) or Timing(),
                     notices=notices)
+    pixel_nm = (ome_pixel_size_nm(meta.get("ome"), timing_planes[0])
+                or imagej_pixel_size_nm(meta.get("imagej"), meta.get("x_resolution")))
     if info0.plain:
         try:
             out_dtype, note = output_dtype(file_dtype, "TIFF")
@@ -292,7 +297,7 @@ def _open(path: Path, fd: int, size: int, fingerprint: str, show_progress: bool,
         if tif is not None:
             tif.close()
         return _chosen(OffsetMovie(path, offsets, frame_shape, file_dtype, out_dtype, **movie_kw),
-                       axes, picked)
+                       axes, picked, pixel_nm)
     if tif is None:
         raise BadInput(f"{path}: compressed TIFF pages that tifffile cannot open")
     page_dtype = numpy_dtype(geo, "=")
@@ -307,9 +312,9 @@ def _open(path: Path, fd: int, size: int, fingerprint: str, show_progress: bool,
     if note:
         notices.append(note)
     return _chosen(DecodedTiffMovie(path, offsets, tif, out_dtype, rgb, (geo.height, geo.width),
-                                    **movie_kw), axes, picked)
+                                    **movie_kw), axes, picked, pixel_nm)
 
 
-def _chosen(movie: Movie, axes: str, picked: dict) -> Movie:
-    movie.axes, movie.selection = axes, picked
+def _chosen(movie: Movie, axes: str, picked: dict, pixel_nm: float | None) -> Movie:
+    movie.axes, movie.selection, movie.pixel_size_nm = axes, picked, pixel_nm
     return movie
