@@ -30,6 +30,7 @@ from scipy import ndimage
 
 FRONT_PIXELS = 1 << 16  # front image at most this many pixels (frames binned b × b to fit)
 EPOCH = 128  # frames per template (at least 2 × reach)
+FRONT_MIN_W = 8  # the front values are scored with the windows this long or longer
 BLUR_PX = 1.0  # blur of the mean image before its gradient (front pixels)
 FRONT_SHARE = 1 / 16  # the template keeps this share of the pixels, the strongest edges
 TREND_BLOCK = 16  # frames per block of the trend estimate (detrend)

@@ -246,7 +246,7 @@ OVERLAP = max(h for h, _ in SHAPES) - 1  # tile rows shared by neighbouring band
 def score_bands(xn: np.ndarray, lo: int, hi: int, windows: tuple[int, ...], tile: int,
                 outer: int = 0, inv_sd: np.ndarray | None = None,
                 scratch: Scratch | None = None, cells: int | None = None,
-                trend: bool = True) -> ChunkScores:
+                trend: bool = True, k_eff: float | None = None) -> ChunkScores:
     """score_chunk in bands of tile rows for large grids, so the work buffers stay near `cells`
     values whatever the frame size. Bands overlap by OVERLAP rows, so every pooled box lies wholly
     in one band; per frame the per-window maxima are the bands' maxima and the location comes
@@ -257,8 +257,9 @@ def score_bands(xn: np.ndarray, lo: int, hi: int, windows: tuple[int, ...], tile
     span = (hi - lo) + 2 * (1 + outer) * max(windows)
     rows = max(2 * OVERLAP, (cells or BAND_CELLS) // max(span * gx, 1))
     if rows + OVERLAP >= gy:
-        return score_chunk(xn, lo, hi, windows, tile, outer, inv_sd, scratch, trend=trend)
-    k_eff = null_tests(gy, gx, tuple(windows), outer)
+        return score_chunk(xn, lo, hi, windows, tile, outer, inv_sd, scratch, trend=trend,
+                           k_eff=k_eff)
+    k_eff = k_eff or null_tests(gy, gx, tuple(windows), outer)
     inv = np.asarray(inv_sd, np.float32).reshape(gy, gx)
     out: ChunkScores | None = None
     best = None

@@ -281,6 +281,7 @@ class _Scanner:
         """Score the front values of frames scored..upto-1, one template segment at a time, and
         keep per frame whichever statistic (tile sums or fronts) is stronger."""
         fd, s = self.fronts, self.s
+        first = next((k for k, w in enumerate(s.windows) if w >= fr.FRONT_MIN_W), 0)
         for e in range(fd.scoring_epoch(self.scored), fd.scoring_epoch(upto - 1) + 1):
             s0 = max(self.scored, e * fd.epoch + fd.reach if e else 0)
             s1 = min(upto, (e + 1) * fd.epoch + fd.reach)
@@ -290,9 +291,16 @@ class _Scanner:
             r1 = min(self.fill, s1 - self.base + self.ctx)
             ser = fd.detrend(fd.series(self.fbuf[r0:r1, 0], self.fbuf[r0:r1, 1],
                                        self.base + r0, e))
-            fs = score_bands(ser, s0 - self.base - r0, s1 - self.base - r0, s.windows,
+            # the long windows only: a dim front needs them, and a change the short window sees
+            # is strong enough for the tile sums
+            fs = score_bands(ser, s0 - self.base - r0, s1 - self.base - r0, s.windows[first:],
                              self.tile, s.outer, fd.inv_sd(e, self.gain, ser), self.scratch,
-                             trend=False)
+                             trend=False, k_eff=cs.k_eff)
+            if first:
+                pw = np.zeros((len(fs.smax), len(s.windows)), np.float32)
+                pw[:, first:] = fs.per_window
+                fs.per_window = pw
+                fs.best_window = (fs.best_window + first).astype(np.int8)
             j = slice(s0 - self.scored, s1 - self.scored)
             # per frame the stronger statistic wins whole (scores, place, onset: an echo of a
             # tile change must keep that change's place to be recognised as its echo)
