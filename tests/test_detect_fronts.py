@@ -120,6 +120,8 @@ def test_a_half_pixel_advance_of_a_dim_edge_is_found():
     local = c[c["kind"] != "global"]
     assert ((local["frame"] - 430).abs() <= 2).sum() == 1
     assert len(local) == 1
+    tiles_only = scan_movie(ArrayMovie(movie), DetectSettings(fronts=False)).candidates
+    assert not ((tiles_only["frame"] - 430).abs() <= 2).any()
 
 
 def test_a_slowly_drifting_edge_gives_no_candidate():

@@ -76,7 +76,7 @@ class _Scanner:
         cap = self.chunk + 2 * self.ctx + min(s.read_block, block_rows)
         self.buf = np.empty((cap, self.gy, self.gx), np.float32)
         # dim fronts (fronts.py): edge-weighted tile values under two templates, rows like buf's
-        self.front_b = fr.front_bin(tuple(shape), self.tile)
+        self.front_b = fr.front_bin(tuple(shape), self.tile) if s.fronts else None
         reach = max(1 + s.outer, 2) * max(s.windows)
         self.fronts = fr.FrontDelay(self.gy, self.gx, self.tile, self.front_b, reach) \
             if self.front_b and reach <= self.ctx else None
