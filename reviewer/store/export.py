@@ -54,7 +54,7 @@ def pixel_size(session, movie=None, given_nm: float | None = None) -> tuple[floa
         return float(kept), str(session.meta.get("pixel_size_source") or GIVEN)
     stored = getattr(movie, "pixel_size_nm", None) if movie is not None else None
     if stored:
-        return float(stored), f"movie metadata: {movie.layout}"
+        return float(stored), f"movie metadata: {movie.layout.split(',')[0]}"
     return None, None
 
 
