@@ -27,8 +27,8 @@ def register(subparsers) -> None:
                    help="comma list of statuses to include (default: %(default)s)")
     add_pixel_size_option(p)
     p.add_argument("--session", metavar="DIR", default=None,
-                   help="session folder (default: <movie>.review/ beside the movie, else the user "
-                        "data folder)")
+                   help="session folder (default: <movie>.review/ beside the movie, else, and always "
+                        "for a movie in the cache such as the demo's, the user data folder)")
     p.set_defaults(func=run)
 
 

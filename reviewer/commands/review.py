@@ -21,8 +21,8 @@ def add_review_options(p: argparse.ArgumentParser) -> None:
                    help="key map: a shipped one by name (default, one-handed) or a .toml file; "
                         "keymap.toml in the settings folder changes single bindings by id")
     p.add_argument("--session", metavar="DIR", default=None,
-                   help="session folder (default: <movie>.review/ beside the movie, else the user "
-                        "data folder)")
+                   help="session folder (default: <movie>.review/ beside the movie, else, and always "
+                        "for a movie in the cache such as the demo's, the user data folder)")
     p.add_argument("--reviewer", metavar="NAME", default=None,
                    help="who reviews: written with every decision and into the export's reviewer "
                         "column (default: the login name)")
