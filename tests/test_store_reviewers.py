@@ -63,10 +63,18 @@ def test_cause_is_carried_from_candidates_to_events_and_export(tmp_path, movie):
     with _open(tmp_path / "s", movie) as s:
         _seed(s)
         assert [e.cause for e in s.events] == [None, "blank", "stage", None]
+        assert [e.cause_words for e in s.events] == [None, "blanked frame", "stage jump", None]
         out, _ = export_events(s, tmp_path / "e.csv")
     df = pd.read_csv(out, dtype=str, keep_default_na=False)
     assert list(df["cause"]) == ["", "blank", "stage", ""]
     assert list(df.columns[-4:]) == ["cause", "reviewer", "x_nm", "y_nm"]
+
+
+def test_every_detector_cause_has_words():
+    from reviewer.detect.candidates import CAUSES
+    from reviewer.store.table import CAUSE_WORDS
+
+    assert set(CAUSE_WORDS) == set(CAUSES)
 
 
 def test_login_name_is_the_default_and_its_absence_is_no_failure(tmp_path, movie, monkeypatch):

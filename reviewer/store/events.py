@@ -14,7 +14,7 @@ from datetime import UTC, datetime
 import numpy as np
 import pandas as pd
 
-from reviewer.store.table import EVENT_COLUMNS
+from reviewer.store.table import CAUSE_WORDS, EVENT_COLUMNS
 
 
 def utc_now() -> str:
@@ -57,6 +57,11 @@ class Event:
 
     def as_row(self) -> dict:
         return {c: getattr(self, c) for c in EVENT_COLUMNS}
+
+    @property
+    def cause_words(self) -> str | None:
+        """The cause in words ('blanked frame', 'beam-current step', ...); None without one."""
+        return None if self.cause is None else CAUSE_WORDS.get(self.cause, self.cause)
 
     def values(self, names) -> dict:
         return {n: getattr(self, n) for n in names}
