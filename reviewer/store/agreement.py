@@ -203,7 +203,8 @@ def merged_rows(result: Agreement) -> list[dict]:
 
 def reviewers_of(rows: list[dict], info: dict) -> list[str]:
     """Who made a table: its sidecar's `reviewers`, then any other name in its reviewer column."""
-    named = [str(r) for r in info.get("reviewers") or [] if r]
+    listed = info.get("reviewers")
+    named = [str(r) for r in listed if r] if isinstance(listed, list) else []
     return list(dict.fromkeys(named + [w for r in rows if (w := _text(r.get("reviewer")))]))
 
 
