@@ -46,9 +46,13 @@ def candidate_rows(candidates) -> list[dict]:
             "frame_end": None if pd.isna(fe) else int(fe),
             "kind": c.kind, "score": float(c.score), "x": _num(c.x), "y": _num(c.y),
             "status": "candidate", "label": "", "note": "", "source": "detector",
-            "reviewed_at": "",
+            "reviewed_at": "", "cause": _cause(getattr(c, "cause", None)),
         })
     return rows
+
+
+def _cause(v) -> str | None:
+    return v if isinstance(v, str) and v else None  # empty for local kinds (NaN when read back)
 
 
 def _num(v) -> float | None:
