@@ -109,8 +109,8 @@ class PlaybackMixin:
         if self._play_timer is not None:
             self._play_timer.stop()
             self._play_timer = None
-        self.draws.clear()
         if self.playing:
+            self.draws.clear()
             if self.frame >= self.movie.n_frames - 1:
                 self.go(0)  # from the start again
             self._restart_clock()
