@@ -142,11 +142,11 @@ def screen_notes(keymap) -> list[tuple[str, str]]:
                       for name, (g, _) in MARKS.items())
     tab = next((s.display for s in keymap.specs if s.id == "focus_list"), "tab")
     return [
-        ("decisions", f"act on the event at this frame (its span or ±{VIEW_TOLERANCE} "
-                      "frames); elsewhere nothing changes"),
-        ("timeline", f"bars: change score, max per column; {glyphs} \u25b2 this frame"),
-        ("focus", f"{tab}: the event list takes ↑ ↓ PgUp PgDn Home End enter; {tab} again "
-                  "gives them back"),
+        ("decisions", f"only on the event in view (its span, ±{VIEW_TOLERANCE} frames)"),
+        ("timeline", f"bars: most change per column; {glyphs} \u25b2 this frame"),
+        ("focus", f"{tab}: the event list takes ↑ ↓ PgUp PgDn Home End enter; {tab}: back"),
+        ("kind", "a global's cause: blank, beam step, stage jump, unknown"),
+        ("play", "x1 is real time; faster skips frames"),
     ]
 
 
@@ -194,20 +194,24 @@ def help_text(keymap, labels: list[str]) -> Text:
 
 
 def split_columns(groups: list, n: int) -> list[list]:
-    """Groups in order into n columns of about equal height (rows + 2 lines a group)."""
-    if n <= 1:
+    """Groups in order into n columns, the tallest column as short as it can be (a group's height:
+    its rows, the lines its long descriptions wrap onto, and 2 for the title and the gap)."""
+    if n <= 1 or len(groups) <= 1:
         return [groups]
     heights = [len(rows) + 2 + sum(len(d) // 40 for _, d in rows) for _, rows in groups]
-    target = sum(heights) / n
-    cols: list[list] = [[]]
-    used = 0
-    for group, h in zip(groups, heights, strict=True):
-        if cols[-1] and used + h / 2 > target and len(cols) < n:
-            cols.append([])
-            used = 0
-        cols[-1].append(group)
-        used += h
-    return cols
+
+    def best(start: int, cols: int) -> tuple[int, list[int]]:
+        """(tallest column, cut points) for groups[start:] in `cols` columns."""
+        if cols == 1:
+            return sum(heights[start:]), []
+        options = []
+        for cut in range(start + 1, len(groups) - cols + 2):
+            rest, cuts = best(cut, cols - 1)
+            options.append((max(sum(heights[start:cut]), rest), [cut, *cuts]))
+        return min(options)
+
+    cuts = [0, *best(0, min(n, len(groups)))[1], len(groups)]
+    return [groups[a:b] for a, b in zip(cuts, cuts[1:], strict=False)]
 
 
 class HelpScreen(ModalScreen[None]):
