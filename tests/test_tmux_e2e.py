@@ -208,3 +208,56 @@ def test_decision_keys_away_from_events_change_nothing_in_tmux(tmp_path):
     after = _export(movie, full_env, tmp_path / "after.csv")
     assert [(r["event_id"], r["status"], r["label"]) for r in after] == \
         [(r["event_id"], r["status"], r["label"]) for r in before]
+
+
+def test_a_note_typed_in_tmux_is_in_the_export_and_quit_says_where(tmp_path):
+    """At 80x24: jump to the first event, w, type a note, enter, e, q. The note is in the CSV that
+    `e` wrote and in a later `reviewer export`; after the screen closes the terminal shows where the
+    session and that export are; Ctrl-C in a second session quits the same way (no hint)."""
+    from sample_movies.growth import PRESETS, scaled, write_movie
+
+    env = {k: os.environ[k] for k in ("REVIEWER_CACHE_DIR", "REVIEWER_DATA_DIR",
+                                      "REVIEWER_CONFIG_DIR")}
+    full_env = {**os.environ, **env}
+    movie = tmp_path / "noted.tif"
+    write_movie(movie, scaled(PRESETS["sample"], 1000, 48, 64), seed=9, fps=400.0)
+    subprocess.run([*REVIEWER, "scan", str(movie)], check=True, env=full_env,
+                   capture_output=True, timeout=120)
+    sock = f"reviewer-e2e-{uuid.uuid4().hex[:8]}"
+
+    def quit_and_read(win: str, key: str) -> str:
+        _tmux(sock, "send-keys", "-t", win, key)
+        _wait(lambda: _tmux(sock, "display", "-p", "-t", win, "#{pane_dead}").strip() == "1",
+              "the app to quit", timeout=15)
+        # -J joins the lines the terminal wrapped, so a long path reads as one
+        return _tmux(sock, "capture-pane", "-p", "-J", "-S", "-", "-t", win)
+
+    try:
+        win = _open(sock, "note", movie, env, size=(80, 24))
+        _tmux(sock, "set-option", "-w", "-t", win, "remain-on-exit", "on")
+        _type(sock, win, "n")
+        eid = _status(sock, win).split("│")[2].split()[0]  # the event in view, e.g. d000000
+        _tmux(sock, "send-keys", "-t", win, "w")
+        _wait(lambda: f"Note on {eid}" in _screen(sock, win), "the note editor")
+        _tmux(sock, "send-keys", "-t", win, "-l", "thin edge, left")
+        _tmux(sock, "send-keys", "-t", win, "Enter")
+        _wait(lambda: f"note on {eid}: thin edge, left" in _screen(sock, win), "the note said")
+        _tmux(sock, "send-keys", "-t", win, "e")
+        _wait(lambda: "exported " in _screen(sock, win), "the export said")
+        said = quit_and_read(win, "q")
+        folder = tmp_path / "noted.tif.review"
+        written = tmp_path / "noted.events.csv"
+        assert f"reviewer: decisions saved in {folder}; last export: {written}" in said, said
+
+        again = _open(sock, "again", movie, env, size=(80, 24))
+        _tmux(sock, "set-option", "-w", "-t", again, "remain-on-exit", "on")
+        said = quit_and_read(again, "C-c")
+        assert f"reviewer: decisions saved in {folder}" in said and "Press" not in said, said
+    finally:
+        subprocess.run(["tmux", "-L", sock, "kill-server"], capture_output=True, timeout=10)
+    with open(written, newline="", encoding="utf-8") as f:
+        rows = {r["event_id"]: r for r in csv.DictReader(f)}
+    assert rows[eid]["note"] == "thin edge, left"
+    assert sum(bool(r["note"]) for r in rows.values()) == 1
+    later = {r["event_id"]: r for r in _export(movie, full_env, tmp_path / "later.csv")}
+    assert later[eid]["note"] == "thin edge, left"
