@@ -33,7 +33,7 @@ class ReviewActions(PlaybackMixin, AnnotateMixin):
         status); False, saying so unless quiet, when there is none."""
         want = "candidate" if pending is True else (pending or None)
         if not self._ev_ids:
-            self.notify("no events yet" + (" (the scan is running)" if self.scanning else ""))
+            self.say("no events yet" + (" (the scan is running)" if self.scanning else ""))
             return False
         i = self._start_index(forward)
         events = self.session.events
@@ -45,7 +45,7 @@ class ReviewActions(PlaybackMixin, AnnotateMixin):
             i += step
         if not quiet:
             which = {None: "", "candidate": "pending "}.get(want, f"{want} ")
-            self.notify(f"no {which}event {'after' if forward else 'before'} frame {self.frame}")
+            self.say(f"no {which}event {'after' if forward else 'before'} frame {self.frame}")
         return False
 
     def action_next_event(self) -> None:
@@ -139,7 +139,7 @@ class ReviewActions(PlaybackMixin, AnnotateMixin):
 
     def action_label(self, k: int) -> None:
         if k > len(self.labels):
-            self.notify(f"no label {k}: the label set has {len(self.labels)}", severity="warning")
+            self.say(f"no label {k}: the label set has {len(self.labels)}", warn=True)
             return
         self._decide(f"label {k}", "set_label", self.labels[k - 1])
 
@@ -173,7 +173,7 @@ class ReviewActions(PlaybackMixin, AnnotateMixin):
             return
         n = sum(1 for e in self.session.events if e.kind == "global" and e.status == "candidate")
         if not n:
-            self.notify("no pending 'global' candidates")
+            self.say("no pending 'global' candidates")
             return
 
         def done(yes: bool | None) -> None:
@@ -181,7 +181,7 @@ class ReviewActions(PlaybackMixin, AnnotateMixin):
                 ok, count = self.write("reject all 'global'", self.session.reject_kind, "global")
                 if not ok:
                     return
-                self.notify(f"rejected {count} 'global' candidates (u undoes)")
+                self.say(f"rejected {count} 'global' candidates (u undoes)")
                 self._after_change(decided=False)
 
         self.push_screen(ConfirmScreen(f"Reject all {n} pending 'global' candidates "
@@ -236,7 +236,7 @@ class ReviewActions(PlaybackMixin, AnnotateMixin):
     def action_zoom_event(self) -> None:
         ev = self.current_event()
         if ev is None or ev.x is None or ev.y is None:
-            self.notify("the current event has no place to zoom to")
+            self.say("the current event has no place to zoom to")
             return
         self._view("zoom_to", ev.x, ev.y)
 

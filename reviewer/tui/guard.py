@@ -58,11 +58,11 @@ class GuardMixin:
 
     def action_acknowledge(self) -> None:
         if not self.session.movie_changes:
-            self.notify("nothing to acknowledge")
+            self.say("nothing to acknowledge")
             return
         if self.write("acknowledge", self.session.acknowledge_movie_change)[0]:
             self.update_banner()
-            self.notify("movie change acknowledged")
+            self.say("movie change acknowledged")
 
     def update_banner(self) -> None:
         banner = self.query_one("#banner", Banner)

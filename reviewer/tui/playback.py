@@ -176,7 +176,7 @@ class PlaybackMixin:
 
     def action_skip_idle(self) -> None:
         if self.scores is None:
-            self.notify("skipping idle stretches needs the scan's scores", severity="warning")
+            self.say("skipping idle stretches needs the scan's scores", warn=True)
             return
         self.skip_idle = not self.skip_idle
         self.say("playback skips idle stretches" if self.skip_idle else
