@@ -25,6 +25,16 @@ def test_movie_frame_counts_movie_time_from_the_base():
     assert movie_frame(7, 0.0, 400.0, 100) == 7 and movie_frame(7, -1.0, 400.0, 1) == 7
 
 
+def test_per_frame_times_count_movie_time_from_the_base_frames_time():
+    from reviewer.tui.playback import movie_frame_by_times
+
+    times = np.array([0.0, 0.1, 0.2, 1.0, 1.05, 1.1])  # a pause between frames 2 and 3
+    assert movie_frame_by_times(times, 0, 0.25, 1) == 2  # 0.25 s: frames at 0, 0.1, 0.2 passed
+    assert movie_frame_by_times(times, 0, 0.5, 2) == 3  # 1.0 s of movie time
+    assert movie_frame_by_times(times, 3, 0.06, 1) == 4  # from 1.0 s: 1.06 s
+    assert movie_frame_by_times(times, 5, 9.0, 1) == 5  # the last frame stays the last
+
+
 def test_play_target_skips_to_the_frame_movie_time_has_reached():
     assert play_target(10, 60, 100) == (60, False)  # frames 11..59 are skipped
     assert play_target(10, 500, 100) == (99, False)  # not past the last frame

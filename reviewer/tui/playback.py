@@ -39,6 +39,14 @@ def movie_frame(base_frame: int, elapsed_s: float, fps: float, speed: float) -> 
     return base_frame + math.floor(max(elapsed_s, 0.0) * fps * speed + 1e-9)
 
 
+def movie_frame_by_times(times_s: np.ndarray, base_frame: int, elapsed_s: float,
+                         speed: float) -> int:
+    """As movie_frame for a movie with a time per frame: the last frame whose time is at most the
+    base frame's time + elapsed x speed."""
+    t = float(times_s[base_frame]) + max(elapsed_s, 0.0) * speed
+    return max(base_frame, int(np.searchsorted(times_s, t + 1e-12, side="right")) - 1)
+
+
 def play_target(current: int, reached: int, n_frames: int,
                 active: np.ndarray | None = None) -> tuple[int, bool]:
     """Where one playback tick goes: (frame, restart the clock there).
@@ -101,6 +109,15 @@ class PlaybackMixin:
                 fps = 1.0 / period if period > 0 else None
         return (float(fps), True) if fps else (NOMINAL_FPS, False)
 
+    def frame_times(self) -> np.ndarray | None:
+        """Each frame's time when the movie has per-frame times (and no constant rate)."""
+        if self.session.meta.get("fps") or getattr(self.movie, "fps", None):
+            return None
+        times = self.session.times_s
+        if times is None or len(times) != self.movie.n_frames:
+            return None
+        return np.asarray(times, dtype=np.float64)
+
     def _restart_clock(self) -> None:
         self._base = (self.frame, time.monotonic())
 
@@ -128,9 +145,12 @@ class PlaybackMixin:
 
     def _tick(self) -> None:
         now = time.monotonic()
-        fps, _ = self.movie_fps()
         base_frame, base_time = self._base
-        reached = movie_frame(base_frame, now - base_time, fps, self.speed)
+        times = self.frame_times()
+        if times is not None:
+            reached = movie_frame_by_times(times, base_frame, now - base_time, self.speed)
+        else:
+            reached = movie_frame(base_frame, now - base_time, self.movie_fps()[0], self.speed)
         active = self.active_frames() if self.skip_idle else None
         target, restart = play_target(self.frame, reached, self.movie.n_frames, active)
         if target == self.frame:
