@@ -106,3 +106,15 @@ async def test_ctrl_c_is_our_quit_and_quitting_says_where_things_are(tmp_path):
     again = Session.open(app.movie.path, app.movie.fingerprint, override=tmp_path / "session")
     assert again.get("d000000").status == "accepted"  # saved, and the lock was released
     again.close()
+
+
+@sync
+async def test_undo_says_the_sessions_description_when_it_gives_one(tmp_path):
+    app = _app(tmp_path)
+    undo = app.session.undo
+    app.session.undo = lambda: (undo(), "accept of d000000")[1]  # a session that describes it
+    async with app.run_test(size=SIZE) as pilot:
+        await _press(pilot, "n a u")
+        assert app.session.get("d000000").status == "candidate"
+        assert app.alert_text == "undid accept of d000000"
+        await app.action_quit()
