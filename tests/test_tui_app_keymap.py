@@ -102,16 +102,26 @@ def test_labels_default_and_user_file(tmp_path, monkeypatch):
 
 
 @pytest.mark.parametrize("text, expected", [
-    ("1234", 1234), (" 0 ", 0), ("3.5s", 1400), ("3.5 s", 1400), ("0:01.25", 500), (".5s", 200)])
+    ("1234", 1234), (" 0 ", 0), ("3.5s", 1400), ("3.5 s", 1400), ("0:01.25", 500), (".5s", 200),
+    ("0:00:01.25", 500), ("0:00:05", 2000), ("0:00:12.4", 4960)])
 def test_go_to_parses_frames_and_times_at_400_fps(text, expected):
     # 400 frames/s: frame = seconds x 400 (common practice, no source)
     assert parse_goto(text, 5000, None, 400.0) == expected
 
 
+def test_go_to_takes_hours_minutes_seconds_on_a_long_movie():
+    from reviewer.tui.screens import parse_seconds
+
+    assert parse_seconds("1:02:03.5") == 3723.5  # 1 h 2 min 3.5 s
+    assert parse_seconds("62:03.5") == 3723.5  # minutes may pass 60 without hours
+    assert parse_seconds("1234") is None  # a frame number
+    assert parse_goto("1:02:03.5", 40_000, None, 10.0) == 37_235  # 3723.5 s x 10 frames/s
+
+
 def test_go_to_uses_per_frame_times_and_rejects_bad_input():
     times = np.array([0.0, 0.1, 0.25, 0.5, 1.0])
     assert parse_goto("0.3s", 5, times, None) == 2  # nearest recorded time (0.25 s)
-    for bad in ("", "abc", "12x", "5", "-1", "2s"):
+    for bad in ("", "abc", "12x", "5", "-1", "2s", "0:0:60", "0:60:00", "1:2:3:4"):
         with pytest.raises(ValueError):
             parse_goto(bad, 5, times, None)
     with pytest.raises(ValueError, match="no timing"):

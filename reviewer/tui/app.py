@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import contextlib
 import os
+import sys
 from pathlib import Path
 from typing import ClassVar
 
@@ -23,7 +24,7 @@ from reviewer.tui.actions import ReviewActions
 from reviewer.tui.guard import AlertLine, Banner, GuardMixin
 from reviewer.tui.labels import load_labels
 from reviewer.tui.scanning import ScanMixin
-from reviewer.tui.status import LONG_MOVIE_S, KeyBar, StatusLine
+from reviewer.tui.status import LONG_MOVIE_S, KeyBar, StatusLine, decimals_for
 
 MIN_SIZE = (80, 24)
 NARROW_BELOW = 110  # columns: below this the event list shrinks to a narrow column
@@ -41,7 +42,8 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
     TITLE = "reviewer"
     DEFAULT_SPECS = tuple(km.default_specs())
     BINDINGS: ClassVar = km.make_bindings(DEFAULT_SPECS) + [
-        Binding("ctrl+q", "quit", show=False, priority=True)]
+        Binding("ctrl+q", "quit", show=False, priority=True),
+        Binding("ctrl+c", "quit", show=False, priority=True)]  # our quit (saves), not Textual's
 
     def __init__(self, movie, session, *, keymap: km.KeyMap, labels: list[str], scan=None,
                  advance: bool = False, run_scan: bool = True, play_fps: float = 12.0) -> None:
@@ -63,6 +65,7 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
         self._position_timer = None
         self._session_closed = False
         self._unreadable: set[int] = set()  # frames already reported as unreadable
+        self.said_on_exit = ""  # printed after the screen closes (where the decisions are)
         self.init_actions()
         self.init_guard()
         self.init_scan(scan, run_scan)
@@ -93,6 +96,7 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
         self.status.period_s = 1.0 / fps if fps else None
         last = self.session.time_of(self.movie.n_frames - 1)
         self.status.long_movie = last is not None and last >= LONG_MOVIE_S
+        self.eventlist.time_decimals = decimals_for(self.status.period_s)
         self.fit_layout()
         self.update_banner()
         self.clear_alert()
@@ -271,7 +275,18 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
 
     async def action_quit(self) -> None:
         self.close_session()
+        if not self.quit_note:  # else the review command says what was kept
+            self.said_on_exit = self.farewell()
         self.exit(0)
+
+    def run(self, *args, **kwargs):
+        """App.run, then what quitting says, on stderr once the screen is gone (as plain text, so a
+        long path stays in one piece)."""
+        try:
+            return super().run(*args, **kwargs)
+        finally:
+            if self.said_on_exit:
+                print(self.said_on_exit, file=sys.stderr)
 
     def on_signal_exit(self, signum: int) -> None:
         """Called by the store's signal saver (the session is already closed)."""

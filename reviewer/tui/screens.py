@@ -15,21 +15,35 @@ from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Input, Static
 
-_TIME = re.compile(r"^(?:(\d+):)?(\d+(?:\.\d*)?|\.\d+)\s*s?$")
+_TIME = re.compile(r"^(?:(?:(\d+):)?(\d+):)?(\d+(?:\.\d*)?|\.\d+)\s*s?$")
+
+
+def parse_seconds(text: str) -> float | None:
+    """Seconds from "3.5s", "1:02.5" (m:ss) or "1:02:03.5" (h:mm:ss); None when it is not a time
+    (a bare number is a frame, not a time). Minutes and seconds after a colon stay below 60."""
+    t = text.strip().lower()
+    m = _TIME.match(t)
+    if not m or (":" not in t and not t.endswith("s")):
+        return None
+    hours, minutes, secs = m.group(1), m.group(2), float(m.group(3))
+    if minutes is not None and (secs >= 60 or (hours is not None and int(minutes) >= 60)):
+        return None
+    return secs + 60 * int(minutes or 0) + 3600 * int(hours or 0)
 
 
 def parse_goto(text: str, n_frames: int, times_s: np.ndarray | None, fps: float | None) -> int:
-    """A frame from "1234" (frame number), "3.5s" (seconds) or "1:02.5" (minutes:seconds)."""
+    """A frame from "1234" (frame number), "3.5s" (seconds), "1:02.5" (minutes:seconds) or
+    "1:02:03.5" (hours:minutes:seconds)."""
     t = text.strip().lower()
     if not t:
-        raise ValueError("type a frame number (1234) or a time (3.5s)")
+        raise ValueError("type a frame number (1234) or a time (3.5s, 1:02:03.5)")
     if t.isdigit():
         frame = int(t)
     else:
-        m = _TIME.match(t)
-        if not m or (":" not in t and not t.endswith("s")):
-            raise ValueError(f"not a frame or a time: {text.strip()!r} (try 1234 or 3.5s)")
-        seconds = float(m.group(2)) + 60 * int(m.group(1) or 0)
+        seconds = parse_seconds(t)
+        if seconds is None:
+            raise ValueError(f"not a frame or a time: {text.strip()!r} "
+                             "(try 1234, 3.5s or 0:01:02.5)")
         if times_s is not None and len(times_s):
             period = float(np.median(np.diff(times_s))) if len(times_s) > 1 else 0.0
             if seconds > times_s[-1] + period:
@@ -59,11 +73,16 @@ class GoToScreen(ModalScreen[int | None]):
         self.time_of = time_of
 
     def compose(self) -> ComposeResult:
+        from reviewer.tui.status import LONG_MOVIE_S, format_time
+
         last = self.time_of(self.n_frames - 1)
-        span = f" or a time up to {last:.3f}s" if last is not None else ""
+        period = 1.0 / self.fps if self.fps else None
+        span = ""
+        if last is not None:
+            span = f" or a time up to {format_time(last, period, last >= LONG_MOVIE_S)}"
         with Vertical(classes="dialog"):
             yield Static(f"Go to a frame (0..{self.n_frames - 1}){span}:", classes="title")
-            yield Input(placeholder="1234 or 3.5s", id="goto-input")
+            yield Input(placeholder="1234, 3.5s or 0:01:02.5", id="goto-input")
             yield Static("", id="goto-error", classes="error")
 
     def on_input_submitted(self, event: Input.Submitted) -> None:
@@ -123,11 +142,11 @@ def screen_notes(keymap) -> list[tuple[str, str]]:
                       for name, (g, _) in MARKS.items())
     tab = next((s.display for s in keymap.specs if s.id == "focus_list"), "tab")
     return [
-        ("decisions", f"act on the event at this frame (its span or ±{VIEW_TOLERANCE} "
-                      "frames); elsewhere nothing changes"),
-        ("timeline", f"bars: change score, max per column; {glyphs} \u25b2 this frame"),
-        ("focus", f"{tab}: the event list takes ↑ ↓ PgUp PgDn Home End enter; {tab} again "
-                  "gives them back"),
+        ("decisions", f"only on the event in view (its span, ±{VIEW_TOLERANCE} frames)"),
+        ("timeline", f"bars: most change per column; {glyphs} \u25b2 this frame"),
+        ("focus", f"{tab}: the event list takes ↑ ↓ PgUp PgDn Home End enter; {tab}: back"),
+        ("kind", "a global's cause: blank, beam step, stage jump, unknown"),
+        ("play", "x1 is real time; faster skips frames"),
     ]
 
 
@@ -175,20 +194,24 @@ def help_text(keymap, labels: list[str]) -> Text:
 
 
 def split_columns(groups: list, n: int) -> list[list]:
-    """Groups in order into n columns of about equal height (rows + 2 lines a group)."""
-    if n <= 1:
+    """Groups in order into n columns, the tallest column as short as it can be (a group's height:
+    its rows, the lines its long descriptions wrap onto, and 2 for the title and the gap)."""
+    if n <= 1 or len(groups) <= 1:
         return [groups]
     heights = [len(rows) + 2 + sum(len(d) // 40 for _, d in rows) for _, rows in groups]
-    target = sum(heights) / n
-    cols: list[list] = [[]]
-    used = 0
-    for group, h in zip(groups, heights, strict=True):
-        if cols[-1] and used + h / 2 > target and len(cols) < n:
-            cols.append([])
-            used = 0
-        cols[-1].append(group)
-        used += h
-    return cols
+
+    def best(start: int, cols: int) -> tuple[int, list[int]]:
+        """(tallest column, cut points) for groups[start:] in `cols` columns."""
+        if cols == 1:
+            return sum(heights[start:]), []
+        options = []
+        for cut in range(start + 1, len(groups) - cols + 2):
+            rest, cuts = best(cut, cols - 1)
+            options.append((max(sum(heights[start:cut]), rest), [cut, *cuts]))
+        return min(options)
+
+    cuts = [0, *best(0, min(n, len(groups)))[1], len(groups)]
+    return [groups[a:b] for a, b in zip(cuts, cuts[1:], strict=False)]
 
 
 class HelpScreen(ModalScreen[None]):
