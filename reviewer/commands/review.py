@@ -73,7 +73,6 @@ def review(movie, args: argparse.Namespace) -> int:
     finally:
         restore()
         app.close_session()
-    print(f"reviewer: {app.session.quit_summary()}")  # the screen is gone: where things are
     if app.quit_note:
         print(f"reviewer: {app.quit_note}", file=sys.stderr)
         return 2

@@ -60,7 +60,7 @@ class Event:
 
     @property
     def cause_words(self) -> str | None:
-        """The cause in words ('blanked frame', 'beam-current step', ...); None without one."""
+        """The cause as the list and status line say it ('blank', 'beam step', ...); None without one."""
         return None if self.cause is None else CAUSE_WORDS.get(self.cause, self.cause)
 
     def values(self, names) -> dict:

@@ -389,12 +389,6 @@ class Session(MovieChangeMixin, ReviewState):
             return False
         return True
 
-    def quit_summary(self) -> str:
-        """One line for leaving the review: where the decisions are and where the last export is."""
-        last = self.last_export
-        return (f"decisions in {self.folder}; "
-                + (f"last export {last}" if last is not None else "not exported from the review"))
-
     def set_position(self, frame: int) -> None:
         frame = int(frame)
         if frame != self._position:

@@ -27,8 +27,7 @@ KINDS = ("step", "transient", "global", "manual")
 STATUSES = ("candidate", "accepted", "rejected", "disputed")  # disputed: reviewers disagreed (merge)
 SOURCES = ("detector", "manual")
 # a global event's cause (detect/candidates.py CAUSES) in words for the list, status line and README
-CAUSE_WORDS = {"blank": "blanked frame", "beam": "beam-current step", "stage": "stage jump",
-               "unknown": "whole-field change"}
+CAUSE_WORDS = {"blank": "blank", "beam": "beam step", "stage": "stage jump", "unknown": "unknown"}
 _TEXT = {"kind", "status", "label", "note", "source", "reviewed_at", "cause", "reviewer"}
 _DANGEROUS = ("=", "+", "-", "@", "\t", "\r")
 

@@ -313,8 +313,7 @@ class ReviewActions(PlaybackMixin, AnnotateMixin):
             text = f"the session in {folder} was read-only: this review changed nothing there"
         else:
             text = f"decisions saved in {folder}"
-        last = (self.last_export or getattr(self.session, "last_export", None)
-                or self.session.meta.get("last_export"))
+        last = self.last_export or self.session.last_export
         if last:
             return f"reviewer: {text}; last export: {last}"
         key = self.keymap_key("export")

@@ -20,6 +20,8 @@ from textual.message import Message
 from textual.scroll_view import ScrollView
 from textual.strip import Strip
 
+from reviewer.store.table import CAUSE_WORDS
+
 # name -> (title, width, right-aligned, index in row_cells); width 0: takes the room left
 COLUMNS = {
     "id": ("id", 8, False, 6), "frame": ("frame", 7, True, 0), "time": ("time s", 10, True, 1),
@@ -32,8 +34,6 @@ ALWAYS = ("id", "frame", "status", "label")  # a narrow list shows these (the la
 BY_NEED = ("kind", "note", "place", "dur", "time", "score")  # added while they fit
 NOTE_MIN = 12
 LABEL_MIN = 6
-# a global candidate's cause (the detector's word, store field `cause`) as the list and status say it
-CAUSE_WORDS = {"blank": "blank", "beam": "beam step", "stage": "stage jump", "unknown": "unknown"}
 
 
 def cause_text(event: object) -> str:
@@ -42,7 +42,7 @@ def cause_text(event: object) -> str:
     if str(getattr(event, "kind", "") or "") != "global":
         return ""
     cause = str(getattr(event, "cause", "") or "").strip().lower()
-    return CAUSE_WORDS.get(cause, cause)
+    return CAUSE_WORDS.get(cause, cause)  # store/table.py: one set of words for every screen
 
 
 def column_widths(width: int) -> dict[str, int]:
