@@ -1,0 +1,131 @@
+"""KymoPane: a kymograph in the terminal, time downwards (one frame per half-cell row), position along
+the line across; a margin column marks the frames holding events (amber) and the cursor (pink)."""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from functools import lru_cache
+
+import numpy as np
+from rich.color import Color
+from rich.segment import Segment
+from rich.style import Style
+from rich.text import Text
+from textual.filter import LineFilter
+from textual.strip import Strip
+from textual.widget import Widget
+
+from reviewer.movie.regions import contrast_limits
+from reviewer.tui import render
+from reviewer.tui.loupe import _no_truecolor_filter
+
+MARGIN = 2  # columns left of the image: the mark column and a gap
+KINDS_RGB = {0: (0, 0, 0), 1: (255, 200, 0), 2: (255, 64, 200)}  # none, event, cursor
+MONO_GLYPHS = {0: " ", 1: "*", 2: ">"}
+
+
+def kymo_canvas(image: np.ndarray, rows: int, cols: int, clip: float) -> tuple[np.ndarray, int]:
+    """Palette indices (2*rows, cols) of a (frames, points) kymograph: frame i on pixel row i,
+    points stretched by a whole number (up to 4) or averaged down to fit. Returns the canvas and the
+    number of columns used."""
+    canvas = np.zeros((2 * rows, cols), dtype=np.uint8)
+    n, points = image.shape
+    if n == 0 or points == 0 or cols < 1:
+        return canvas, 0
+    k = max(1, min(4, cols // points))
+    out_w = min(cols, points * k)
+    small = render.resample(image[: 2 * rows], min(n, 2 * rows), out_w)
+    lo, hi = contrast_limits([image], clip)
+    canvas[: small.shape[0], :out_w] = render.to_indices(small, lo, hi)
+    return canvas, out_w
+
+
+def mark_kinds(start: int, n_rows: int, events: np.ndarray, cursor: int) -> np.ndarray:
+    """Per pixel row of the pane (frame start + i): 0 nothing, 1 an event's frame, 2 the cursor."""
+    kinds = np.zeros(n_rows, dtype=np.int8)
+    ev = np.asarray(events, dtype=np.int64) - start
+    kinds[ev[(ev >= 0) & (ev < n_rows)]] = 1
+    if 0 <= cursor - start < n_rows:
+        kinds[cursor - start] = 2
+    return kinds
+
+
+@lru_cache(maxsize=32)
+def _mark_segment(top: int, bottom: int, system: str) -> Segment:
+    if system == "mono":
+        return Segment(MONO_GLYPHS[max(top, bottom)], Style(bold=True))
+    if system == "truecolor":
+        fg, bg = (Color.from_rgb(*KINDS_RGB[k]) for k in (top, bottom))
+    else:
+        fg, bg = (Color.from_ansi(render.nearest_xterm_number(KINDS_RGB[k])) for k in (top, bottom))
+    return Segment(render.HALF_BLOCK, Style.from_color(fg, bg))
+
+
+class KymoPane(Widget):
+    DEFAULT_CSS = "KymoPane { width: 1fr; height: 1fr; background: #000000; }"
+
+    def __init__(self, *, system: str | None = None, **kwargs) -> None:
+        super().__init__(**kwargs)
+        self._system_override = system
+        self.image: np.ndarray | None = None
+        self.start = 0
+        self.cursor = 0
+        self.events = np.empty(0, dtype=np.int64)
+        self.clip = 0.5
+        self.label = ""
+        self._strips: list[Strip] | None = None
+        self._built: tuple[int, int] | None = None
+        self.canvas: np.ndarray | None = None
+
+    @property
+    def system(self) -> str:
+        if self._system_override is not None:
+            return self._system_override
+        return render.system_for_console(self.app.console.color_system, self.app.no_color)
+
+    def frames_shown(self, rows: int | None = None) -> int:
+        """Frames the pane shows at once: two per row below the header."""
+        rows = self.size.height if rows is None else rows
+        return max(2 * (rows - 1), 2)
+
+    def show(self, image: np.ndarray, start: int, cursor: int, events: np.ndarray, *,
+             clip: float = 0.5, label: str = "") -> None:
+        self.image, self.start, self.cursor = image, int(start), int(cursor)
+        self.events, self.clip, self.label = np.asarray(events), float(clip), label
+        self._strips = None
+        self.refresh()
+
+    def _build(self, rows: int, cols: int) -> list[Strip]:
+        header = Text(" kymograph ", style="bold", no_wrap=True, overflow="ellipsis")
+        if self.image is None:
+            header.append("(none)", "dim")
+            return [Strip(header.render(self.app.console)).adjust_cell_length(cols)] + [
+                Strip.blank(cols)] * max(rows - 1, 0)
+        n = len(self.image)
+        header.append(f"frames {self.start}–{self.start + n - 1} ↓ · {self.label}", "not bold")
+        body = max(rows - 1, 1)
+        system = self.system
+        canvas, used = kymo_canvas(self.image, body, max(cols - MARGIN, 1), self.clip)
+        self.canvas = canvas
+        lines = render.image_to_rows(canvas, render.segment_table("grey", system))
+        kinds = mark_kinds(self.start, 2 * body, self.events, self.cursor)
+        gap = Segment(" ")
+        out = [Strip(header.render(self.app.console)).adjust_cell_length(cols)]
+        for r, line in enumerate(lines):
+            mark = _mark_segment(int(kinds[2 * r]), int(kinds[2 * r + 1]), system)
+            out.append(Strip([mark, gap, *line[:used]]).adjust_cell_length(cols))
+        return out[:rows]
+
+    def render_line(self, y: int) -> Strip:
+        rows, cols = self.size.height, self.size.width
+        if self._strips is None or self._built != (rows, cols):
+            self._strips = self._build(rows, cols)
+            self._built = (rows, cols)
+        return self._strips[y] if 0 <= y < len(self._strips) else Strip.blank(cols)
+
+    def on_resize(self) -> None:
+        self._strips = None
+        self.refresh()
+
+    def get_line_filters(self) -> Sequence[LineFilter]:
+        return _no_truecolor_filter(self, super().get_line_filters())
