@@ -153,14 +153,23 @@ class Loupe(Widget, can_focus=True):
         self.canvas, self.box, self.limits = canvas, box, limits
         y0, y1, x0, x1 = box
         system = self.system
-        lines = render.image_to_rows(canvas, render.segment_table("grey", system))
-        self._overlay(lines, box, place, system)
+        table = render.segment_table("grey", system)
+        strips = render.image_to_strips(canvas, table, render.segment_ids("grey", system))
+        overlays = self._overlays(box, place, n_img, cols)
+        if overlays:  # only rows with a mark, the line or the crosshair are rebuilt cell by cell
+            rows_of = sorted({r for r, _, _, _ in overlays})
+            lines = dict(zip(rows_of, render.image_to_rows(
+                np.concatenate([canvas[2 * r:2 * r + 2] for r in rows_of]), table), strict=True))
+            for r, c, glyph, rgb in overlays:
+                lines[r][c] = _glyph(glyph, rgb, system)
+            for r, line in lines.items():
+                strips[r] = Strip(line, cols)
         header.append(f" loupe {self.mag}× · {x1 - x0}×{y1 - y0} px at x {x0}–{x1 - 1}, "
                       f"y {y0}–{y1 - 1}")
         if self.label:
             header.append(f" · {self.label}", "not bold")
         out = [Strip(header.render(self.app.console)).adjust_cell_length(cols)]
-        out += [Strip(line, cols) for line in lines]
+        out += strips
         if self.pixel_m:
             self.bar = scale_bar_cells(self.pixel_m, x1 - x0, (x1 - x0) * self.mag)
             out.append(self._bar_strip(cols))
@@ -176,15 +185,17 @@ class Loupe(Widget, can_focus=True):
             text.append(f" {label}", "bold")
         return Strip(text.render(self.app.console)).adjust_cell_length(cols)
 
-    def _overlay(self, lines: list[list[Segment]], box: Box, place, system: str) -> None:
-        rows, cols = len(lines), len(lines[0]) if lines else 0
+    def _overlays(self, box: Box, place, rows: int, cols: int) -> list:
+        """(row, col, glyph, colour) of every overlaid cell: the line, its ends, the event's
+        corners, the crosshair (later ones drawn over earlier ones)."""
         y0, y1, x0, x1 = box
+        out = []
 
-        def put(x: float, y: float, glyph: str, rgb) -> None:
+        def put(x: float, y: float, glyph: str, rgb, dr: int = 0, dc: int = 0) -> None:
             if x0 <= round(x) < x1 and y0 <= round(y) < y1:
                 r, c = cell_of(x, y, box, self.mag, place)
-                if 0 <= r < rows and 0 <= c < cols:
-                    lines[r][c] = _glyph(glyph, rgb, system)
+                if 0 <= r + dr < rows and 0 <= c + dc < cols:
+                    out.append((r + dr, c + dc, glyph, rgb))
 
         pts = self.line_points
         if len(pts) == 2:
@@ -195,14 +206,11 @@ class Loupe(Widget, can_focus=True):
         for px, py in pts:
             put(px, py, "●", LINE_RGB)
         if self.mark is not None:
-            mx, my = self.mark
-            r, c = cell_of(mx, my, box, self.mag, place)
             for (dr, dc), g in zip(((-1, -1), (-1, 1), (1, -1), (1, 1)), "┌┐└┘", strict=True):
-                if x0 <= round(mx) < x1 and y0 <= round(my) < y1 and 0 <= r + dr < rows \
-                        and 0 <= c + dc < cols:
-                    lines[r + dr][c + dc] = _glyph(g, MARK_RGB, system)
+                put(*self.mark, g, MARK_RGB, dr, dc)
         if self.cross is not None:
             put(*self.cross, "┼", CROSS_RGB)
+        return out
 
     def render_line(self, y: int) -> Strip:
         rows, cols = self.size.height, self.size.width
