@@ -135,6 +135,9 @@ async def test_at_80x24_the_loupe_takes_the_frame_views_place(tmp_path):
         assert x0 <= x < x1 and y0 <= y < y1  # the event's place is in it
         n, metres, _ = loupe.bar
         assert abs(n - metres / 0.05e-9 * loupe.mag) <= 1
+        drawn = [loupe.render_line(y).text for y in range(loupe.size.height)]
+        assert drawn[-1].strip().startswith("\u2501" * n + " ")  # the bar, then its length
+        assert sum(line.count(g) for line in drawn for g in "┌┐└┘") == 4  # the event's corners
         await _press(pilot, "l")
         assert app.frameview.display and not loupe.display
         scale = app.query_one("#framescale")

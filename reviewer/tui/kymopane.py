@@ -3,7 +3,6 @@ the line across; a margin column marks the frames holding events (amber) and the
 
 from __future__ import annotations
 
-from collections.abc import Sequence
 from functools import lru_cache
 
 import numpy as np
@@ -11,13 +10,11 @@ from rich.color import Color
 from rich.segment import Segment
 from rich.style import Style
 from rich.text import Text
-from textual.filter import LineFilter
 from textual.strip import Strip
-from textual.widget import Widget
 
 from reviewer.movie.regions import contrast_limits
 from reviewer.tui import render
-from reviewer.tui.loupe import _no_truecolor_filter
+from reviewer.tui.loupe import StripPane
 
 MARGIN = 2  # columns left of the image: the mark column and a gap
 KINDS_RGB = {0: (0, 0, 0), 1: (255, 200, 0), 2: (255, 64, 200)}  # none, event, cursor
@@ -61,27 +58,18 @@ def _mark_segment(top: int, bottom: int, system: str) -> Segment:
     return Segment(render.HALF_BLOCK, Style.from_color(fg, bg))
 
 
-class KymoPane(Widget):
+class KymoPane(StripPane):
     DEFAULT_CSS = "KymoPane { width: 1fr; height: 1fr; background: #000000; }"
 
-    def __init__(self, *, system: str | None = None, **kwargs) -> None:
+    def __init__(self, **kwargs) -> None:
         super().__init__(**kwargs)
-        self._system_override = system
         self.image: np.ndarray | None = None
         self.start = 0
         self.cursor = 0
         self.events = np.empty(0, dtype=np.int64)
         self.clip = 0.5
         self.label = ""
-        self._strips: list[Strip] | None = None
-        self._built: tuple[int, int] | None = None
         self.canvas: np.ndarray | None = None
-
-    @property
-    def system(self) -> str:
-        if self._system_override is not None:
-            return self._system_override
-        return render.system_for_console(self.app.console.color_system, self.app.no_color)
 
     def frames_shown(self, rows: int | None = None) -> int:
         """Frames the pane shows at once: two per row below the header."""
@@ -92,8 +80,7 @@ class KymoPane(Widget):
              clip: float = 0.5, label: str = "") -> None:
         self.image, self.start, self.cursor = image, int(start), int(cursor)
         self.events, self.clip, self.label = np.asarray(events), float(clip), label
-        self._strips = None
-        self.refresh()
+        self.redraw()
 
     def _build(self, rows: int, cols: int) -> list[Strip]:
         header = Text(" kymograph ", style="bold", no_wrap=True, overflow="ellipsis")
@@ -115,17 +102,3 @@ class KymoPane(Widget):
             mark = _mark_segment(int(kinds[2 * r]), int(kinds[2 * r + 1]), system)
             out.append(Strip([mark, gap, *line[:used]]).adjust_cell_length(cols))
         return out[:rows]
-
-    def render_line(self, y: int) -> Strip:
-        rows, cols = self.size.height, self.size.width
-        if self._strips is None or self._built != (rows, cols):
-            self._strips = self._build(rows, cols)
-            self._built = (rows, cols)
-        return self._strips[y] if 0 <= y < len(self._strips) else Strip.blank(cols)
-
-    def on_resize(self) -> None:
-        self._strips = None
-        self.refresh()
-
-    def get_line_filters(self) -> Sequence[LineFilter]:
-        return _no_truecolor_filter(self, super().get_line_filters())

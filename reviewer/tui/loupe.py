@@ -81,7 +81,45 @@ def _no_truecolor_filter(widget: Widget, filters: Sequence[LineFilter]) -> list[
     return [f for f in filters if not isinstance(f, ANSIToTruecolor)]
 
 
-class Loupe(Widget, can_focus=True):
+class StripPane(Widget):
+    """A pane drawn as cached strips: `_build(rows, cols)` runs once per change (`redraw()`) or
+    size; `render_line` only hands the strips out."""
+
+    def __init__(self, *, system: str | None = None, **kwargs) -> None:
+        super().__init__(**kwargs)
+        self._system_override = system
+        self._strips: list[Strip] | None = None
+        self._built: tuple[int, int] | None = None
+
+    @property
+    def system(self) -> str:
+        """Colour system in use: "truecolor", "256" or "mono"."""
+        if self._system_override is not None:
+            return self._system_override
+        return render.system_for_console(self.app.console.color_system, self.app.no_color)
+
+    def _build(self, rows: int, cols: int) -> list[Strip]:
+        raise NotImplementedError
+
+    def redraw(self) -> None:
+        self._strips = None
+        self.refresh()
+
+    def render_line(self, y: int) -> Strip:
+        rows, cols = self.size.height, self.size.width
+        if self._strips is None or self._built != (rows, cols):
+            self._strips = self._build(rows, cols)
+            self._built = (rows, cols)
+        return self._strips[y] if 0 <= y < len(self._strips) else Strip.blank(cols)
+
+    def on_resize(self) -> None:
+        self.redraw()
+
+    def get_line_filters(self) -> Sequence[LineFilter]:
+        return _no_truecolor_filter(self, super().get_line_filters())
+
+
+class Loupe(StripPane, can_focus=True):
     """Shows `show()`'s image around a centre. While focused (placing a line) the arrow keys move
     the crosshair and Enter sets a point."""
 
@@ -98,9 +136,8 @@ class Loupe(Widget, can_focus=True):
         Binding("enter", "cross_point", "set a point of the line", show=False),
     ]
 
-    def __init__(self, *, system: str | None = None, **kwargs) -> None:
+    def __init__(self, **kwargs) -> None:
         super().__init__(**kwargs)
-        self._system_override = system
         self.image: np.ndarray | None = None
         self.contrast_with: tuple[np.ndarray, ...] = ()
         self.centre = (0.0, 0.0)
@@ -111,19 +148,11 @@ class Loupe(Widget, can_focus=True):
         self.cross: tuple[float, float] | None = None
         self.line_points: list[tuple[float, float]] = []
         self.pixel_m: float | None = None
-        self._strips: list[Strip] | None = None
-        self._built: tuple[int, int] | None = None
         # filled by each build, for the status text and the tests
         self.canvas: np.ndarray | None = None
         self.box: Box | None = None
         self.limits: tuple[float, float] | None = None
         self.bar: tuple[int, float, str] | None = None
-
-    @property
-    def system(self) -> str:
-        if self._system_override is not None:
-            return self._system_override
-        return render.system_for_console(self.app.console.color_system, self.app.no_color)
 
     def show(self, image: np.ndarray, centre: tuple[float, float], *, mag: int = 1,
              clip: float = 0.5, contrast_with: Sequence[np.ndarray] = (), label: str = "",
@@ -134,8 +163,7 @@ class Loupe(Widget, can_focus=True):
         self.centre, self.mag, self.clip, self.label = centre, int(mag), float(clip), label
         self.mark, self.cross, self.line_points = mark, cross, list(line_points)
         self.pixel_m = pixel_m
-        self._strips = None
-        self.refresh()
+        self.redraw()
 
     def image_rows(self, rows: int) -> int:
         """Rows of the picture: the widget's rows less the header and the scale bar's row."""
@@ -211,20 +239,6 @@ class Loupe(Widget, can_focus=True):
         if self.cross is not None:
             put(*self.cross, "┼", CROSS_RGB)
         return out
-
-    def render_line(self, y: int) -> Strip:
-        rows, cols = self.size.height, self.size.width
-        if self._strips is None or self._built != (rows, cols):
-            self._strips = self._build(rows, cols)
-            self._built = (rows, cols)
-        return self._strips[y] if 0 <= y < len(self._strips) else Strip.blank(cols)
-
-    def on_resize(self) -> None:
-        self._strips = None
-        self.refresh()
-
-    def get_line_filters(self) -> Sequence[LineFilter]:
-        return _no_truecolor_filter(self, super().get_line_filters())
 
     def action_cross(self, dx: int, dy: int) -> None:
         self.app.cross_move(dx, dy)
