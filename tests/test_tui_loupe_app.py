@@ -130,6 +130,7 @@ async def test_at_80x24_the_loupe_takes_the_frame_views_place(tmp_path):
         await _press(pilot, "n", "l")
         loupe = app.query_one("#loupe")
         assert not app.frameview.display and loupe.size.width >= 40 and loupe.size.height >= 8
+        assert not app.query_one("#framescale").display  # no bar for a hidden view
         x, y = (movie.layer_x[0] + movie.layer_x[1]) // 2, movie.layer_y
         y0, y1, x0, x1 = loupe.box
         assert x0 <= x < x1 and y0 <= y < y1  # the event's place is in it

@@ -88,7 +88,8 @@ class SeeingMixin(KymoActions):
             narrow = width < NARROW_BELOW
             self.frameview.display = not (column.display and narrow)
             column.styles.width = "1fr" if narrow else max(40, int(width * 0.38))
-            self._part("framescale").display = self.pixel_m() is not None
+            self._part("framescale").display = (self.pixel_m() is not None
+                                                 and self.frameview.display)
 
     # ---- where to look --------------------------------------------------------------------------
     def seeing_place(self) -> tuple[float, float]:
