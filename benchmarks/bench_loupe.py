@@ -7,7 +7,7 @@ reached. Cases, side by side in one run, each in 256 colours (no COLORTERM) and 
 at 256 x 256 px frames (bench_redraw's) and at 1024 x 1024. Target: >= 30 redraws/s with the loupe.
 Also the median CPU time of one loupe build (region, contrast, strips) headless.
 
-    python benchmarks/bench_loupe.py [--seconds 4] [--skip-tmux]
+    python benchmarks/bench_loupe.py [--seconds 4] [--skip-tmux] [--px 256 1024] [--only-256]
 """
 
 from __future__ import annotations
@@ -80,6 +80,8 @@ def main(argv: list[str] | None = None) -> int:
     p = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     p.add_argument("--seconds", type=float, default=4.0)
     p.add_argument("--skip-tmux", action="store_true")
+    p.add_argument("--px", type=int, nargs="+", default=[256, 1024], help="frame sizes")
+    p.add_argument("--only-256", action="store_true", help="256 colours only (the target)")
     p.add_argument("--player", type=Path, help=argparse.SUPPRESS)
     a = p.parse_args(argv)
     if a.player:
@@ -90,13 +92,13 @@ def main(argv: list[str] | None = None) -> int:
         return 0
     print("cache: none involved: frames are invented in memory before timing; each timed redraw "
           "shows a frame not drawn before")
-    for px in (256, 1024):
+    for px in a.px:
         print(f"headless loupe picture (70 x 57 cells, 2x) from {px}x{px} frames: "
               f"{headless_build_ms(px):.2f} ms median CPU")
     if a.skip_tmux:
         return 0
-    for px in (256, 1024):
-        for colorterm in (None, "truecolor"):
+    for px in a.px:
+        for colorterm in (None,) if a.only_256 else (None, "truecolor"):
             rates = {}
             for mode in ("frame", "loupe"):
                 os.environ[MODE_VAR], os.environ[SIZE_VAR] = mode, str(px)
