@@ -19,7 +19,6 @@ from reviewer.tui.seeing_kymo import KymoActions
 BLINK_NS = (1, 2, 3, 5, 8, 12, 20, 30, 50)  # frames averaged on each side of the blink
 DEFAULT_BLINK_N = 5
 BLINK_HZ = 2.0  # the auto-alternating blink: flips per second
-NARROW_BELOW = 110  # as app.NARROW_BELOW: below it the loupe column replaces the frame view
 
 
 class SeeingMixin(KymoActions):
@@ -77,15 +76,16 @@ class SeeingMixin(KymoActions):
         return nm * 1e-9 if nm and nm > 0 else None
 
     def fit_seeing(self, size=None) -> None:
-        """Show the column when the loupe or the kymograph is on; below NARROW_BELOW columns it
-        takes the frame view's place, wider it sits beside it."""
+        """Show the column when the loupe or the kymograph is on; when the body is narrow (app.
+        fit_layout, below app.NARROW_BELOW columns) it takes the frame view's place, wider it sits
+        beside it."""
         with contextlib.suppress(Exception):  # before compose / after unmount
             width = (size or self.size).width
             column, loupe, kymo = self._part("seeing"), self._part("loupe"), self._part("kymo")
             want_loupe = self.loupe_on or self.cross is not None
             column.display = want_loupe or self.kymo_on
             loupe.display, kymo.display = want_loupe, self.kymo_on
-            narrow = width < NARROW_BELOW
+            narrow = self.query_one("#body").has_class("narrow")
             self.frameview.display = not (column.display and narrow)
             column.styles.width = "1fr" if narrow else max(40, int(width * 0.38))
             self._part("framescale").display = (self.pixel_m() is not None
