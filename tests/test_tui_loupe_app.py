@@ -195,3 +195,31 @@ async def test_clip_key_writes_the_events_clip_and_strip_once_each(tmp_path):
         assert (tmp_path / "layer.d000000.clip-2.gif").is_file()
         assert "clip of frames 10–29" in app.alert_text
         await app.action_quit()
+
+
+class DamagedLayerMovie(LayerMovie):
+    """Frame 17 cannot be read (as a truncated file would fail)."""
+
+    def _read(self, start, stop):
+        if start <= 17 < stop:
+            raise OSError("truncated page")
+        return super()._read(start, stop)
+
+
+@sync
+async def test_a_damaged_frame_in_the_blink_window_is_one_line_not_a_crash(tmp_path):
+    movie = DamagedLayerMovie(128, 40, path=tmp_path / "layer.npy")
+    app = _app(tmp_path, movie)
+    async with app.run_test(size=(140, 40)) as pilot:
+        await _press(pilot, "n", "l", "B")
+        assert app.blink_side is None  # back to the live frame
+        assert "blink: the frames around the event cannot be read" in app.alert_text
+        assert "frame 17" in app.alert_text
+        await _press(pilot, "K")  # the kymograph of frames 0-37 needs frame 17 too
+        pane = app.query_one("#kymo")
+        rows = np.isnan(pane.image[:, 0])
+        assert rows.sum() == 1 and rows[17 - pane.start]  # one black row, the rest drawn
+        assert "1 unreadable frame black" in pane.label
+        await _press(pilot, "right")
+        assert app.frame == LAYER_FRAME + 1  # the review goes on
+        await app.action_quit()

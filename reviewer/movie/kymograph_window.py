@@ -11,6 +11,7 @@ from collections import OrderedDict
 
 import numpy as np
 
+from reviewer.errors import BadInput
 from reviewer.movie.kymograph import Line, Sampler
 
 
@@ -31,14 +32,20 @@ class KymographWindow:
         self.keep = keep
         self._profiles: OrderedDict[int, np.ndarray] = OrderedDict()
         self.reads = 0  # frames read so far (for tests and the status text)
+        self.unreadable: set[int] = set()  # frames that could not be read (NaN rows)
 
     def profile(self, frame: int, image: np.ndarray | None = None) -> np.ndarray:
         """The line's profile in one frame; `image`, when given, is that frame already read."""
         got = self._profiles.get(frame)
         if got is None:
-            img = np.asarray(self.movie.frame(frame) if image is None else image)
-            got = self.sampler.sample(img[None])[0].astype(np.float32)
+            try:
+                img = np.asarray(self.movie.frame(frame) if image is None else image)
+            except BadInput:  # a damaged frame: a row of NaN (drawn black), the rest still shown
+                img = None
+                self.unreadable.add(frame)
             self.reads += int(image is None)
+            got = (np.full(self.sampler.n_points, np.nan, np.float32) if img is None
+                   else self.sampler.sample(img[None])[0].astype(np.float32))
             self._profiles[frame] = got
             while len(self._profiles) > self.keep:
                 self._profiles.popitem(last=False)

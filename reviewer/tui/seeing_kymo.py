@@ -152,6 +152,9 @@ class KymoActions:
         ln = self.kymo_line
         label = (f"x {ln.x0:.0f},{ln.y0:.0f} → {ln.x1:.0f},{ln.y1:.0f} · width {ln.width} · "
                  f"{samples.shape[1]} px")
+        bad = int(np.isnan(samples[:, 0]).sum())
+        if bad:
+            label += f" · {bad} unreadable frame{'s' if bad > 1 else ''} black"
         self._part("kymo").show(samples, start, self.frame, self._ev_frames,
                                 clip=getattr(self.frameview, "clip", 0.5), label=label)
 
