@@ -223,3 +223,18 @@ async def test_a_damaged_frame_in_the_blink_window_is_one_line_not_a_crash(tmp_p
         await _press(pilot, "right")
         assert app.frame == LAYER_FRAME + 1  # the review goes on
         await app.action_quit()
+
+
+@sync
+async def test_the_line_is_kept_in_the_session_exactly_when_the_store_takes_it(tmp_path):
+    from reviewer.store import meta as store_meta
+
+    movie = LayerMovie(128, 40, path=tmp_path / "layer.npy")
+    app = _app(tmp_path, movie)
+    async with app.run_test(size=(140, 40)) as pilot:
+        await _press(pilot, "n", "K")
+        assert app.kymo_line is not None
+        stored = app.session.meta.get("kymograph_line")
+        assert app.line_saved_in_session == ("kymograph_line" in store_meta.KEYS)
+        assert (stored is not None) == app.line_saved_in_session
+        await app.action_quit()

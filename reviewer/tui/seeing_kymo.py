@@ -39,8 +39,11 @@ class KymoActions:
         if ln is None or META_LINE not in getattr(store_meta, "KEYS", ()):
             self.line_saved_in_session = False
             return
-        ok, _ = self.write("saving the kymograph line", self.session.update_meta,
-                           **{META_LINE: [ln.x0, ln.y0, ln.x1, ln.y1, ln.width]})
+        try:
+            ok, _ = self.write("saving the kymograph line", self.session.update_meta,
+                               **{META_LINE: [ln.x0, ln.y0, ln.x1, ln.y1, ln.width]})
+        except (TypeError, ValueError):  # the store does not take a list there: memory only
+            ok = False
         self.line_saved_in_session = ok
 
     def default_line(self):
