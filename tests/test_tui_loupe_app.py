@@ -238,3 +238,18 @@ async def test_the_line_is_kept_in_the_session_exactly_when_the_store_takes_it(t
         assert app.line_saved_in_session == ("kymograph_line" in store_meta.KEYS)
         assert (stored is not None) == app.line_saved_in_session
         await app.action_quit()
+
+
+@pytest.mark.parametrize("size", [(80, 24), (200, 60)])
+@sync
+async def test_every_key_on_a_movie_smaller_than_the_loupe(tmp_path, size):
+    movie = LayerMovie(24, 40, path=tmp_path / "layer.npy")  # 24 x 24 px: the whole frame fits
+    app = _app(tmp_path, movie)
+    async with app.run_test(size=size) as pilot:
+        await _press(pilot, "n", "l", "L", "L", "B", "A", "less_than_sign", "V", "K", "slash",
+                     "enter", "right", "enter", "W", "W", "I", "M", "L", "p", "l")
+        loupe = app.query_one("#loupe")
+        assert loupe.box is not None and loupe.box[1] - loupe.box[0] <= 24
+        assert (tmp_path / "layer.kymograph.png").is_file()
+        assert (tmp_path / "layer.d000000.clip.gif").is_file()
+        await app.action_quit()
