@@ -4,6 +4,7 @@
 from __future__ import annotations
 
 import asyncio
+import contextlib
 import functools
 import math
 
@@ -36,6 +37,15 @@ def _app(tmp_path, movie) -> ReviewApp:
     return ReviewApp(movie, session, keymap=load_keymap(), labels=load_labels(), run_scan=False)
 
 
+@contextlib.asynccontextmanager
+async def _review(tmp_path, movie, size):
+    """The app on `movie` in a terminal of `size`; quits (closing the session) at the end."""
+    app = _app(tmp_path, movie)
+    async with app.run_test(size=size) as pilot:
+        yield app, pilot
+        await app.action_quit()
+
+
 async def _press(pilot, *keys):
     await pilot.press(*keys)
     await pilot.pause()
@@ -53,8 +63,7 @@ def _layer_diff(app, before, after, mag):
 @sync
 async def test_acceptance_blink_in_the_loupe_shows_the_layer_on_a_2048_movie(tmp_path):
     movie = LayerMovie(2048, 40, path=tmp_path / "layer.npy")
-    app = _app(tmp_path, movie)
-    async with app.run_test(size=(160, 48)) as pilot:
+    async with _review(tmp_path, movie, (160, 48)) as (app, pilot):
         await _press(pilot, "n", "l")  # the event at frame 20; the loupe on
         loupe = app.query_one("#loupe")
         assert app.frame == LAYER_FRAME and loupe.display and loupe.mag == 1
@@ -78,15 +87,13 @@ async def test_acceptance_blink_in_the_loupe_shows_the_layer_on_a_2048_movie(tmp
         await _press(pilot, "B", "B", "B")  # flipping reads nothing again
         assert len(movie.reads) == count
         assert "blink before · N 5" in app.status.plain
-        await app.action_quit()
 
 
 @pytest.mark.parametrize("dtype", [np.uint8, np.uint16, np.float32])
 @sync
 async def test_blink_magnify_and_live_frame_on_each_pixel_type(tmp_path, dtype):
     movie = LayerMovie(256, 40, dtype=dtype, path=tmp_path / "layer.npy")
-    app = _app(tmp_path, movie)
-    async with app.run_test(size=(140, 40)) as pilot:
+    async with _review(tmp_path, movie, (140, 40)) as (app, pilot):
         await _press(pilot, "t")  # the what-changed view: the blink takes the frame view over
         await _press(pilot, "n", "L", "B")  # event; loupe at 2x; before
         loupe = app.query_one("#loupe")
@@ -100,14 +107,12 @@ async def test_blink_magnify_and_live_frame_on_each_pixel_type(tmp_path, dtype):
         await _press(pilot, "V")
         assert app.blink_side is None and app.frameview.mode == "change"
         assert loupe.label == ""
-        await app.action_quit()
 
 
 @sync
 async def test_auto_blink_alternates_by_itself(tmp_path):
     movie = LayerMovie(128, 40, path=tmp_path / "layer.npy")
-    app = _app(tmp_path, movie)
-    async with app.run_test(size=(140, 40)) as pilot:
+    async with _review(tmp_path, movie, (140, 40)) as (app, pilot):
         await _press(pilot, "n", "A")
         seen = set()
         for _ in range(50):  # up to 10 s on a loaded machine; 2 flips a second
@@ -120,15 +125,13 @@ async def test_auto_blink_alternates_by_itself(tmp_path):
         side = app.blink_side
         await pilot.pause(1.2)
         assert app.blink_side == side  # stopped
-        await app.action_quit()
 
 
 @sync
 async def test_at_80x24_the_loupe_takes_the_frame_views_place(tmp_path):
     movie = LayerMovie(256, 40, path=tmp_path / "layer.npy")
     movie.pixel_size_nm = 0.05
-    app = _app(tmp_path, movie)
-    async with app.run_test(size=(80, 24)) as pilot:
+    async with _review(tmp_path, movie, (80, 24)) as (app, pilot):
         await _press(pilot, "n", "l")
         loupe = app.query_one("#loupe")
         assert not app.frameview.display and loupe.size.width >= 40 and loupe.size.height >= 8
@@ -145,14 +148,12 @@ async def test_at_80x24_the_loupe_takes_the_frame_views_place(tmp_path):
         assert app.frameview.display and not loupe.display
         scale = app.query_one("#framescale")
         assert scale.display and scale.bar is not None
-        await app.action_quit()
 
 
 @sync
 async def test_kymograph_pane_line_placing_and_saving(tmp_path):
     movie = LayerMovie(256, 40, path=tmp_path / "layer.npy")
-    app = _app(tmp_path, movie)
-    async with app.run_test(size=(160, 48)) as pilot:
+    async with _review(tmp_path, movie, (160, 48)) as (app, pilot):
         await _press(pilot, "n", "K")
         line = app.kymo_line
         ex, ey = (movie.layer_x[0] + movie.layer_x[1]) // 2, movie.layer_y
@@ -177,7 +178,6 @@ async def test_kymograph_pane_line_placing_and_saving(tmp_path):
         assert (ln.x0, ln.y0, ln.x1, ln.y1) == (ex - 3, ey, ex + 17, ey - 1)
         await _press(pilot, "W")
         assert app.kymo_line.width == 3
-        await app.action_quit()
 
 
 @sync
@@ -185,8 +185,7 @@ async def test_clip_key_writes_the_events_clip_and_strip_once_each(tmp_path):
     from PIL import Image
 
     movie = LayerMovie(256, 40, path=tmp_path / "layer.npy")
-    app = _app(tmp_path, movie)
-    async with app.run_test(size=(140, 40)) as pilot:
+    async with _review(tmp_path, movie, (140, 40)) as (app, pilot):
         await _press(pilot, "n", "M", "M")
         gif = tmp_path / "layer.d000000.clip.gif"
         with Image.open(gif) as img:
@@ -194,7 +193,6 @@ async def test_clip_key_writes_the_events_clip_and_strip_once_each(tmp_path):
         assert (tmp_path / "layer.d000000.clip.png").is_file()
         assert (tmp_path / "layer.d000000.clip-2.gif").is_file()
         assert "clip of frames 10–29" in app.alert_text
-        await app.action_quit()
 
 
 class DamagedLayerMovie(LayerMovie):
@@ -209,8 +207,7 @@ class DamagedLayerMovie(LayerMovie):
 @sync
 async def test_a_damaged_frame_in_the_blink_window_is_one_line_not_a_crash(tmp_path):
     movie = DamagedLayerMovie(128, 40, path=tmp_path / "layer.npy")
-    app = _app(tmp_path, movie)
-    async with app.run_test(size=(140, 40)) as pilot:
+    async with _review(tmp_path, movie, (140, 40)) as (app, pilot):
         await _press(pilot, "n", "l", "B")
         assert app.blink_side is None  # back to the live frame
         assert "blink: the frames around the event cannot be read" in app.alert_text
@@ -222,7 +219,6 @@ async def test_a_damaged_frame_in_the_blink_window_is_one_line_not_a_crash(tmp_p
         assert "1 unreadable frame black" in pane.label
         await _press(pilot, "right")
         assert app.frame == LAYER_FRAME + 1  # the review goes on
-        await app.action_quit()
 
 
 @sync
@@ -230,26 +226,22 @@ async def test_the_line_is_kept_in_the_session_exactly_when_the_store_takes_it(t
     from reviewer.store import meta as store_meta
 
     movie = LayerMovie(128, 40, path=tmp_path / "layer.npy")
-    app = _app(tmp_path, movie)
-    async with app.run_test(size=(140, 40)) as pilot:
+    async with _review(tmp_path, movie, (140, 40)) as (app, pilot):
         await _press(pilot, "n", "K")
         assert app.kymo_line is not None
         stored = app.session.meta.get("kymograph_line")
         assert app.line_saved_in_session == ("kymograph_line" in store_meta.KEYS)
         assert (stored is not None) == app.line_saved_in_session
-        await app.action_quit()
 
 
 @pytest.mark.parametrize("size", [(80, 24), (200, 60)])
 @sync
 async def test_every_key_on_a_movie_smaller_than_the_loupe(tmp_path, size):
     movie = LayerMovie(24, 40, path=tmp_path / "layer.npy")  # 24 x 24 px: the whole frame fits
-    app = _app(tmp_path, movie)
-    async with app.run_test(size=size) as pilot:
+    async with _review(tmp_path, movie, size) as (app, pilot):
         await _press(pilot, "n", "l", "L", "L", "B", "A", "less_than_sign", "V", "K", "slash",
                      "enter", "right", "enter", "W", "W", "I", "M", "L", "p", "l")
         loupe = app.query_one("#loupe")
         assert loupe.box is not None and loupe.box[1] - loupe.box[0] <= 24
         assert (tmp_path / "layer.kymograph.png").is_file()
         assert (tmp_path / "layer.d000000.clip.gif").is_file()
-        await app.action_quit()
