@@ -11,11 +11,14 @@ import math
 import numpy as np
 import pandas as pd
 import pytest
+import tifffile
 from loupe_movies import BACKGROUND, LAYER_FRAME, PLATELET, LayerMovie
 
+from reviewer.movie.kymograph import auto_bin, kymograph
 from reviewer.store.session import Session
 from reviewer.tui.app import ReviewApp
 from reviewer.tui.keymap import load_keymap
+from reviewer.tui.kymopane import mark_kinds
 from reviewer.tui.labels import load_labels
 
 
@@ -44,6 +47,15 @@ async def _review(tmp_path, movie, size):
     async with app.run_test(size=size) as pilot:
         yield app, pilot
         await app.action_quit()
+
+
+async def _until(pilot, condition, seconds: float = 10.0) -> bool:
+    """Wait (for a loaded machine) until condition() holds; whether it did."""
+    for _ in range(int(seconds / 0.1)):
+        if condition():
+            return True
+        await pilot.pause(0.1)
+    return bool(condition())
 
 
 async def _press(pilot, *keys):
@@ -186,8 +198,11 @@ async def test_clip_key_writes_the_events_clip_and_strip_once_each(tmp_path):
 
     movie = LayerMovie(256, 40, path=tmp_path / "layer.npy")
     async with _review(tmp_path, movie, (140, 40)) as (app, pilot):
-        await _press(pilot, "n", "M", "M")
+        await _press(pilot, "n", "M")
         gif = tmp_path / "layer.d000000.clip.gif"
+        assert await _until(pilot, gif.is_file), app.alert_text
+        await _press(pilot, "M")
+        assert await _until(pilot, (tmp_path / "layer.d000000.clip-2.gif").is_file)
         with Image.open(gif) as img:
             assert img.n_frames == 20  # 10 before and 10 from the event on
         assert (tmp_path / "layer.d000000.clip.png").is_file()
@@ -245,3 +260,27 @@ async def test_every_key_on_a_movie_smaller_than_the_loupe(tmp_path, size):
         assert loupe.box is not None and loupe.box[1] - loupe.box[0] <= 24
         assert (tmp_path / "layer.kymograph.png").is_file()
         assert (tmp_path / "layer.d000000.clip.gif").is_file()
+
+
+@sync
+async def test_whole_movie_kymograph_is_binned_to_fit_and_read_in_the_background(tmp_path):
+    movie = LayerMovie(64, 400, path=tmp_path / "layer.npy")
+    async with _review(tmp_path, movie, (140, 40)) as (app, pilot):
+        await _press(pilot, "n", "K", "K")
+        assert app.kymo_scope == "movie"
+        assert await _until(pilot, lambda: app._whole is not None, 30)  # a thread does the pass
+        await pilot.pause()
+        pane = app.query_one("#kymo")
+        k = auto_bin(400, pane.frames_shown())
+        assert k > 1 and pane.bin_frames == k and len(pane.image) == -(-400 // k)
+        want = kymograph(LayerMovie(64, 400), app.kymo_line, 0, 400, k)  # the headless pass
+        np.testing.assert_allclose(pane.image, want, rtol=1e-6)
+        kinds = mark_kinds(0, len(pane.image), app._ev_frames, app.frame, k)
+        assert kinds[LAYER_FRAME // k] == 2  # the cursor is on the event's frame
+        await _press(pilot, "right")
+        # frames read: 0, 20, 21 shown; the frames around the cursor (the first K); the pass once
+        assert len(movie.reads) <= 3 + pane.frames_shown() + 400
+        await _press(pilot, "I")
+        assert tifffile.imread(tmp_path / "layer.kymograph.tif").shape == pane.image.shape
+        await _press(pilot, "K")
+        assert not app.kymo_on

@@ -2,12 +2,14 @@
 
 Moving the cursor by one frame reads one new frame; the profiles already sampled are kept (up to
 `keep` of them, the oldest dropped first), so memory is bounded by the profiles, not the frames.
-Sampling is movie/kymograph.py's Sampler (bilinear, averaged across the width).
+Sampling is movie/kymograph.py's Sampler (bilinear, averaged across the width). `whole_movie` is the
+same for every frame, binned in time, in one pass that holds one frame at a time.
 """
 
 from __future__ import annotations
 
 from collections import OrderedDict
+from collections.abc import Callable
 
 import numpy as np
 
@@ -58,3 +60,28 @@ class KymographWindow:
         --frames start:stop --bin 1 gives. `known`: frames already read, by index."""
         known = known or {}
         return np.stack([self.profile(f, known.get(f)) for f in range(start, stop)])
+
+
+class _FrameByFrame:
+    """A movie seen through iter_blocks of one frame each (memory: one frame), calling `check`
+    before each read (it raises to stop the pass)."""
+
+    def __init__(self, movie, check: Callable[[], None]) -> None:
+        self.movie, self.check = movie, check
+        self.n_frames, self.height, self.width = movie.n_frames, movie.height, movie.width
+
+    def iter_blocks(self, size: int = 1, start: int = 0, stop: int | None = None):
+        stop = self.n_frames if stop is None else stop
+        for i in range(start, stop):
+            self.check()
+            yield i, self.movie.block(i, i + 1)
+
+
+def whole_movie(movie, line: Line, bin_frames: int, check: Callable[[], None] | None = None,
+                progress: Callable[[int], None] | None = None) -> np.ndarray:
+    """The kymograph of the whole movie in bins of `bin_frames` (movie/kymograph.py's kymograph),
+    reading one frame at a time, so that memory is one frame plus the result."""
+    from reviewer.movie.kymograph import kymograph
+
+    return kymograph(_FrameByFrame(movie, check or (lambda: None)), line, 0, movie.n_frames,
+                     bin_frames, progress)

@@ -37,13 +37,16 @@ def kymo_canvas(image: np.ndarray, rows: int, cols: int, clip: float) -> tuple[n
     return canvas, out_w
 
 
-def mark_kinds(start: int, n_rows: int, events: np.ndarray, cursor: int) -> np.ndarray:
-    """Per pixel row of the pane (frame start + i): 0 nothing, 1 an event's frame, 2 the cursor."""
+def mark_kinds(start: int, n_rows: int, events: np.ndarray, cursor: int,
+               bin_frames: int = 1) -> np.ndarray:
+    """Per pixel row of the pane (frames start + i*bin_frames onwards): 0 nothing, 1 holds an
+    event's frame, 2 holds the cursor."""
     kinds = np.zeros(n_rows, dtype=np.int8)
     ev = np.asarray(events, dtype=np.int64) - start
-    kinds[ev[(ev >= 0) & (ev < n_rows)]] = 1
-    if 0 <= cursor - start < n_rows:
-        kinds[cursor - start] = 2
+    ev = ev[ev >= 0] // bin_frames
+    kinds[ev[ev < n_rows]] = 1
+    if cursor >= start and (cursor - start) // bin_frames < n_rows:
+        kinds[(cursor - start) // bin_frames] = 2
     return kinds
 
 
@@ -69,6 +72,7 @@ class KymoPane(StripPane):
         self.events = np.empty(0, dtype=np.int64)
         self.clip = 0.5
         self.label = ""
+        self.bin_frames = 1
         self.canvas: np.ndarray | None = None
 
     def frames_shown(self, rows: int | None = None) -> int:
@@ -77,7 +81,9 @@ class KymoPane(StripPane):
         return max(2 * (rows - 1), 2)
 
     def show(self, image: np.ndarray, start: int, cursor: int, events: np.ndarray, *,
-             clip: float = 0.5, label: str = "") -> None:
+             clip: float = 0.5, label: str = "", bin_frames: int = 1) -> None:
+        """Row i of `image` holds frames start + i*bin_frames ... (bin_frames of them)."""
+        self.bin_frames = max(int(bin_frames), 1)
         self.image, self.start, self.cursor = image, int(start), int(cursor)
         self.events, self.clip, self.label = np.asarray(events), float(clip), label
         self.redraw()
@@ -89,13 +95,16 @@ class KymoPane(StripPane):
             return [Strip(header.render(self.app.console)).adjust_cell_length(cols)] + [
                 Strip.blank(cols)] * max(rows - 1, 0)
         n = len(self.image)
-        header.append(f"frames {self.start}–{self.start + n - 1} ↓ · {self.label}", "not bold")
+        k = self.bin_frames
+        span = (f"frames {self.start}–{self.start + n - 1} ↓" if k == 1 else
+                f"{n} rows of {k} frames from {self.start} ↓")
+        header.append(f"{span} · {self.label}", "not bold")
         body = max(rows - 1, 1)
         system = self.system
         canvas, used = kymo_canvas(self.image, body, max(cols - MARGIN, 1), self.clip)
         self.canvas = canvas
         lines = render.image_to_rows(canvas, render.segment_table("grey", system))
-        kinds = mark_kinds(self.start, 2 * body, self.events, self.cursor)
+        kinds = mark_kinds(self.start, 2 * body, self.events, self.cursor, k)
         gap = Segment(" ")
         out = [Strip(header.render(self.app.console)).adjust_cell_length(cols)]
         for r, line in enumerate(lines):

@@ -36,6 +36,10 @@ class SeeingMixin(KymoActions):
         self.kymo_line = None  # movie.kymograph.Line
         self.kymo_width = 1
         self.line_saved_in_session = False
+        self.kymo_scope = "cursor"  # or "movie": the whole movie, binned
+        self._whole = None  # ((line, bin), samples) of the last whole-movie pass
+        self._whole_pending = None  # (line, bin) being read
+        self._whole_done_frames = 0
         self._kymo_window = None
         self.cross: tuple[float, float] | None = None  # while a line is placed
         self.cross_points: list[tuple[float, float]] = []

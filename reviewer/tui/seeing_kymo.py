@@ -54,7 +54,14 @@ class KymoActions:
         return regions.line_across(image, x, y, LINE_LENGTH, self.kymo_width)
 
     def action_loupe_kymograph(self) -> None:
-        self.kymo_on = not self.kymo_on
+        """Off -> the frames around the cursor -> the whole movie, binned to fit -> off."""
+        if self.kymo_on and self.kymo_scope == "cursor":
+            self.kymo_scope = "movie"
+            self.say("kymograph: the whole movie, in rows of several frames (read in the "
+                     "background; the frames around the cursor until it is done)")
+            self._refresh_seeing()
+            return
+        self.kymo_on, self.kymo_scope = not self.kymo_on, "cursor"
         if self.kymo_on and self.kymo_line is None:
             self.kymo_line = self.default_line()
             if self.kymo_line is None:
@@ -128,18 +135,84 @@ class KymoActions:
 
     # ---- the pane -------------------------------------------------------------------------------
     def _kymograph_now(self, image: np.ndarray | None):
-        """(samples, first frame) of the frames the pane shows around the cursor, or None."""
+        """(samples, first frame, frames per row) of what the pane shows, or None: the whole
+        movie once its pass is done, else the frames around the cursor."""
         from reviewer.movie.kymograph_window import KymographWindow, centred_range
 
         pane = self._part("kymo")
         if not self.kymo_on or self.kymo_line is None or not pane.display:
             return None
+        if self.kymo_scope == "movie":
+            got = self._whole_movie_kymograph(pane.frames_shown())
+            if got is not None:
+                return got
         window = self._kymo_window
         if window is None or window.line != self.kymo_line:
             window = self._kymo_window = KymographWindow(self.movie, self.kymo_line)
         start, stop = centred_range(self.frame, pane.frames_shown(), self.movie.n_frames)
         known = {self.frame: image} if image is not None else None
-        return window.image(start, stop, known), start
+        return window.image(start, stop, known), start, 1
+
+    # ---- the whole movie, in a thread (one frame in memory at a time) ---------------------------
+    def _whole_movie_kymograph(self, rows: int):
+        """The finished pass for this line and pane height, or None (then one is started)."""
+        from reviewer.movie.kymograph import auto_bin
+
+        key = (self.kymo_line, auto_bin(self.movie.n_frames, max(rows, 2)))
+        if self._whole is not None and self._whole[0] == key:
+            return self._whole[1], 0, key[1]
+        if self._whole_pending != key:
+            self._whole_pending, self._whole_done_frames = key, 0
+            self.run_worker(lambda: self._whole_thread(key), thread=True, exclusive=True,
+                            group="kymograph", exit_on_error=False)
+        return None
+
+    def _whole_thread(self, key) -> None:
+        import time
+
+        from textual.worker import get_current_worker
+
+        from reviewer.errors import BadInput
+        from reviewer.movie.kymograph_window import whole_movie
+
+        worker, done, last = get_current_worker(), [0], [0.0]
+
+        class Stopped(Exception):
+            pass
+
+        def check() -> None:
+            if worker.is_cancelled or self._whole_pending != key:
+                raise Stopped
+
+        def progress(n: int) -> None:
+            done[0] += n
+            if time.monotonic() - last[0] > 0.25:
+                last[0] = time.monotonic()
+                self.call_from_thread(self._whole_progress, key, done[0])
+
+        try:
+            image = whole_movie(self.movie, key[0], key[1], check, progress)
+        except Stopped:
+            return
+        except (BadInput, OSError, ValueError) as exc:
+            self.call_from_thread(self._whole_failed, key, str(exc))
+            return
+        self.call_from_thread(self._whole_finished, key, image)
+
+    def _whole_progress(self, key, frames: int) -> None:
+        if self._whole_pending == key:
+            self._whole_done_frames = frames
+            self._draw_kymograph(self._seen_image)
+
+    def _whole_finished(self, key, image: np.ndarray) -> None:
+        if self._whole_pending == key:
+            self._whole, self._whole_pending = (key, image), None
+            self._draw_kymograph(self._seen_image)
+
+    def _whole_failed(self, key, text: str) -> None:
+        if self._whole_pending == key:
+            self._whole_pending, self.kymo_scope = None, "cursor"
+            self.say(f"kymograph of the whole movie stopped: {text}", warn=True)
 
     def _draw_kymograph(self, image: np.ndarray | None) -> None:
         from reviewer.errors import BadInput
@@ -151,15 +224,19 @@ class KymoActions:
             return
         if got is None:
             return
-        samples, start = got
+        samples, start, bin_frames = got
         ln = self.kymo_line
         label = (f"x {ln.x0:.0f},{ln.y0:.0f} → {ln.x1:.0f},{ln.y1:.0f} · width {ln.width} · "
                  f"{samples.shape[1]} px")
+        if self.kymo_scope == "movie" and bin_frames == 1 and self._whole_pending is not None:
+            label += (f" · whole movie: {100 * self._whole_done_frames / self.movie.n_frames:.0f}"
+                      " % read")
         bad = int(np.isnan(samples[:, 0]).sum())
         if bad:
             label += f" · {bad} unreadable frame{'s' if bad > 1 else ''} black"
         self._part("kymo").show(samples, start, self.frame, self._ev_frames,
-                                clip=getattr(self.frameview, "clip", 0.5), label=label)
+                                clip=getattr(self.frameview, "clip", 0.5), label=label,
+                                bin_frames=bin_frames)
 
     # ---- files ----------------------------------------------------------------------------------
     def _unused_beside(self, middle: str, *suffixes: str) -> list[Path]:
@@ -200,17 +277,19 @@ class KymoActions:
             if got is None:
                 self.say("show the kymograph first (it saves what it shows)", warn=True)
                 return
-            samples, start = got
+            samples, start, bin_frames = got
             png, _ = self._guarded(".kymograph", ".png", ".tif")
+            frames = min(len(samples) * bin_frames, self.movie.n_frames - start)
             meta = {"movie": str(self.movie.path), "fingerprint": self.movie.fingerprint,
                     "line": [ln.x0, ln.y0, ln.x1, ln.y1], "width": ln.width, "first_frame": start,
-                    "frames": len(samples), "bin_frames": 1, "fps": self.movie.fps}
+                    "frames": frames, "bin_frames": bin_frames, "fps": self.movie.fps}
             tif = save_kymograph(samples, png, meta, self._ev_frames)
         except (BadInput, OSError) as exc:
             self.say(f"kymograph not saved: {exc}", warn=True)
             return
-        self.say(f"kymograph frames {start}–{start + len(samples) - 1}: {png} + {tif.name}; whole "
-                 f"movie: reviewer kymograph {self.movie.path.name} --line "
+        self.say(f"kymograph frames {start}–{start + frames - 1}"
+                 f"{f' in rows of {bin_frames}' if bin_frames > 1 else ''}: {png} + {tif.name}; "
+                 f"headless: reviewer kymograph {self.movie.path.name} --line "
                  f"{ln.x0:g},{ln.y0:g},{ln.x1:g},{ln.y1:g} --width {ln.width} -o KYMO.png")
 
     def action_loupe_clip(self) -> None:
