@@ -143,10 +143,12 @@ class SeeingMixin(KymoActions):
                 self.say(f"blink: the frames around the event cannot be read ({exc})", warn=True)
             else:
                 side, other, rng = (b, a, rb) if self.blink_side == "before" else (a, b, ra)
-                if side is None:  # at the movie's start or end one side is empty
-                    side, rng = other, (ra if self.blink_side == "before" else rb)
-                shown, others = side, tuple(x for x in (other,) if x is not None)
                 label = f"{self.blink_side}: mean of frames {rng[0]}–{rng[1] - 1}"
+                if side is None:  # at the movie's start one side is empty: the other is shown
+                    side, rng = other, (ra if self.blink_side == "before" else rb)
+                    label = (f"{self.blink_side}: no frames; showing frames "
+                             f"{rng[0]}–{rng[1] - 1}")
+                shown, others = side, tuple(x for x in (other,) if x is not None)
                 self.frameview.show(side)
                 pin_frame_contrast(self.frameview, [side, *others])
         if self.cross is not None:
