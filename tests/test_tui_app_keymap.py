@@ -9,7 +9,7 @@ from reviewer.errors import BadInput
 from reviewer.tui import keymap as km
 from reviewer.tui.app import ReviewApp
 from reviewer.tui.labels import load_labels
-from reviewer.tui.screens import help_text, parse_goto
+from reviewer.tui.screens import PAIRS, help_text, pair_keys, parse_goto
 
 # Keys the issue text asks for, by binding id (the acceptance keys typed in tmux among them).
 ISSUE_KEYS = {"next_event": "n", "prev_event": "p", "next_pending": "N", "prev_pending": "P",
@@ -83,8 +83,16 @@ def test_unknown_keymap_name_lists_the_shipped_ones():
 def test_help_text_comes_from_the_data():
     keys = km.load_keymap()
     text = help_text(keys, ["alpha", "beta"]).plain
+    by_id = keys.by_id()
+    seconds = {other: (first, desc) for first, (other, desc) in PAIRS.items()}
     for spec in keys.specs:
-        assert spec.display in text or spec.id.startswith("label_"), spec.id  # labels: "1…9"
+        if spec.id in PAIRS:  # shown on one row with its partner
+            other, desc = PAIRS[spec.id]
+            assert f"{pair_keys(spec.display, by_id[other].display)}  " in text and desc in text
+        elif spec.id in seconds:
+            assert seconds[spec.id][1] in text, spec.id
+        else:
+            assert spec.display in text or spec.id.startswith("label_"), spec.id  # labels: "1…9"
     assert "label and accept: 1 alpha, 2 beta\n" in text  # keys 3-9 give no label here
     assert "1…9" in text
 

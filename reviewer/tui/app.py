@@ -24,6 +24,7 @@ from reviewer.tui.actions import ReviewActions
 from reviewer.tui.guard import AlertLine, Banner, GuardMixin
 from reviewer.tui.labels import load_labels
 from reviewer.tui.scanning import ScanMixin
+from reviewer.tui.seeing import SeeingMixin
 from reviewer.tui.status import LONG_MOVIE_S, KeyBar, StatusLine, decimals_for
 
 MIN_SIZE = (80, 24)
@@ -33,7 +34,7 @@ POSITION_SAVE_S = 2.0  # the position is journaled this long after the cursor st
 VIEW_TOLERANCE = 2  # a decision key acts on an event within this many frames of the viewed one
 
 
-class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
+class ReviewApp(SeeingMixin, GuardMixin, ScanMixin, ReviewActions, App):
     """Review one movie's events. Use make_app() to build one."""
 
     CSS_PATH = "app.tcss"
@@ -69,6 +70,7 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
         self.init_actions()
         self.init_guard()
         self.init_scan(scan, run_scan)
+        self.init_seeing()
 
     # ---- layout ---------------------------------------------------------------------------------
     def compose(self) -> ComposeResult:
@@ -79,7 +81,9 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
         yield Banner(id="banner")
         with Horizontal(id="body"):
             yield FrameView(id="frame")
+            yield from self.compose_seeing()  # loupe and kymograph column (tui/seeing.py)
             yield EventList(id="events")
+        yield from self.compose_scale()
         yield Timeline(id="timeline")
         yield ProgressBar(id="scanbar", total=self.movie.n_frames, show_eta=True)
         yield AlertLine(id="alert")
@@ -120,6 +124,7 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
         width = (size or self.size).width
         with contextlib.suppress(Exception):  # before compose / after unmount: nothing to fit
             self.query_one("#body").set_class(width < NARROW_BELOW, "narrow")
+        self.fit_seeing(size)
 
     def check_size(self, size=None) -> None:
         """Whenever the window is below MIN_SIZE, the too-small screen covers it (and closes
@@ -199,6 +204,7 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
         try:
             image = self.movie.frame(self.frame)
         except (BadInput, OSError, ValueError) as exc:
+            image = None
             self.frameview.show_unreadable(f"frame {self.frame}: {exc}")
             if self.frame not in self._unreadable:
                 self._unreadable.add(self.frame)
@@ -215,6 +221,7 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
             self.frameview.set_mark(ev.x, ev.y)
         else:
             self.frameview.set_mark(None)
+        self.show_seeing(image)
         self.timeline.set_position(self.frame)
         if ev is not None:
             self.eventlist.select_event(ev.event_id)
@@ -226,7 +233,7 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
 
     def status_extras(self) -> dict:
         counts = self.session.counts()
-        return {"pending": counts.get("candidate", 0), "mode": self.frameview.status_text,
+        return {"pending": counts.get("candidate", 0), "mode": self.seeing_text() or self.frameview.status_text,
                 "play": self.play_text(), "scan": self.scan_text()}
 
     def go(self, frame: int, *, jumped_to: str | None = None) -> None:

@@ -150,16 +150,62 @@ def screen_notes(keymap) -> list[tuple[str, str]]:
     ]
 
 
+# bindings the help shows on one row, as the README's key table does: first id -> (second id, what
+# the pair does); the keys shown are whatever the key map in use binds
+PAIRS = {
+    "next_event": ("prev_event", "next / previous event (any status)"),
+    "next_pending": ("prev_pending", "next / previous pending candidate"),
+    "frame_forward": ("frame_back", "one frame later / earlier"),
+    "forward_10": ("back_10", "10 frames later / earlier"),
+    "page_forward": ("page_back", "1 % of the movie later / earlier"),
+    "first_frame": ("last_frame", "first / last frame"),
+    "accept": ("reject", "accept / reject the event at this frame"),
+    "nudge_earlier": ("nudge_later", "move the event one frame earlier / later"),
+    "undo": ("redo", "undo (many levels) / redo"),
+    "slower": ("faster", "play slower / faster"),
+    "contrast_stronger": ("contrast_flatter", "contrast stronger / flatter (grey window)"),
+    "zoom_in": ("zoom_out", "zoom in / out"),
+    "pan_left": ("pan_right", "pan left / right"),
+    "pan_up": ("pan_down", "pan up / down"),
+    "timeline_in": ("timeline_out", "timeline: zoom in around this frame / out"),
+    "loupe_blink_fewer": ("loupe_blink_more", "blink over fewer / more frames (N)"),
+}
+
+
+ARROWS = {"right": "→", "left": "←", "up": "↑", "down": "↓"}
+
+
+def pair_keys(a: str, b: str) -> str:
+    """Two bindings' keys on one help row, short: 'n / p', 'shift+→ / ←' (arrows as glyphs, a shared
+    modifier written once)."""
+    def short(k: str) -> str:
+        return " ".join("+".join(ARROWS.get(p, p) for p in key.split("+")) for key in k.split())
+
+    a, b = short(a), short(b)
+    head_a, _, tail_a = a.rpartition("+")
+    head_b, _, tail_b = b.rpartition("+")
+    if head_a and head_a == head_b and " " not in a + b:
+        return f"{a} / {tail_b}"
+    return f"{a} / {b}"
+
+
 def help_entries(keymap, labels: list[str]) -> list[tuple[str, list[tuple[str, str]]]]:
     """(title, [(keys, what they do)]) per group of the key map, then the notes on the screen."""
     groups = []
     for group, specs in keymap.groups():
         rows = []
         label_specs = [s for s in specs if "{label}" in s.description]
+        by_id = {s.id: s for s in specs}
+        paired = {PAIRS[i][0] for i in by_id if i in PAIRS and PAIRS[i][0] in by_id}
         for s in specs:
             if s in label_specs:
                 if s is label_specs[0]:
                     rows.append(_label_line(label_specs, labels))
+            elif s.id in paired:
+                continue
+            elif s.id in PAIRS and PAIRS[s.id][0] in by_id:
+                other, desc = PAIRS[s.id]
+                rows.append((pair_keys(s.display, by_id[other].display), desc))
             else:
                 rows.append((s.display, s.description))
         groups.append((group.capitalize(), rows))
@@ -193,25 +239,36 @@ def help_text(keymap, labels: list[str]) -> Text:
     return out
 
 
+WRAP_AT = 40  # description characters per help row in a two-column layout (a safe guess)
+
+
 def split_columns(groups: list, n: int) -> list[list]:
-    """Groups in order into n columns, the tallest column as short as it can be (a group's height:
-    its rows, the lines its long descriptions wrap onto, and 2 for the title and the gap)."""
-    if n <= 1 or len(groups) <= 1:
+    """Groups in order into n columns of about equal height (a row's height: 1 plus the lines its
+    description wraps onto; a group's title and the gap after it: 2). A group that does not end in
+    its column goes on at the top of the next under its title with ' (cont.)'."""
+    if n <= 1 or not groups:
         return [groups]
-    heights = [len(rows) + 2 + sum(len(d) // 40 for _, d in rows) for _, rows in groups]
-
-    def best(start: int, cols: int) -> tuple[int, list[int]]:
-        """(tallest column, cut points) for groups[start:] in `cols` columns."""
-        if cols == 1:
-            return sum(heights[start:]), []
-        options = []
-        for cut in range(start + 1, len(groups) - cols + 2):
-            rest, cuts = best(cut, cols - 1)
-            options.append((max(sum(heights[start:cut]), rest), [cut, *cuts]))
-        return min(options)
-
-    cuts = [0, *best(0, min(n, len(groups)))[1], len(groups)]
-    return [groups[a:b] for a, b in zip(cuts, cuts[1:], strict=False)]
+    total = sum(2 + sum(1 + len(d) // WRAP_AT for _, d in rows) for _, rows in groups)
+    target = -(-total // n)
+    columns: list[list] = [[]]
+    used = 0
+    for title, rows in groups:
+        part: list = []
+        name = title
+        if used + 3 > target and columns[-1] and len(columns) < n:  # title + a row would not fit
+            columns.append([])
+            used = 0
+        used += 2
+        for row in rows:
+            h = 1 + len(row[1]) // WRAP_AT
+            if used + h > target and part and len(columns) < n:
+                columns[-1].append((name, part))
+                columns.append([])
+                part, name, used = [], f"{title} (cont.)", 2
+            part.append(row)
+            used += h
+        columns[-1].append((name, part))
+    return columns
 
 
 class HelpScreen(ModalScreen[None]):
