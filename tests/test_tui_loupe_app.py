@@ -237,16 +237,16 @@ async def test_a_damaged_frame_in_the_blink_window_is_one_line_not_a_crash(tmp_p
 
 
 @sync
-async def test_the_line_is_kept_in_the_session_exactly_when_the_store_takes_it(tmp_path):
-    from reviewer.store import meta as store_meta
-
+async def test_the_line_is_kept_in_the_session_and_comes_back(tmp_path):
     movie = LayerMovie(128, 40, path=tmp_path / "layer.npy")
     async with _review(tmp_path, movie, (140, 40)) as (app, pilot):
         await _press(pilot, "n", "K")
-        assert app.kymo_line is not None
-        stored = app.session.meta.get("kymograph_line")
-        assert app.line_saved_in_session == ("kymograph_line" in store_meta.KEYS)
-        assert (stored is not None) == app.line_saved_in_session
+        ln = app.kymo_line
+        assert ln is not None and app.line_saved_in_session
+        assert app.session.meta["kymograph_line"] == [ln.x0, ln.y0, ln.x1, ln.y1, ln.width]
+    async with _review(tmp_path, movie, (140, 40)) as (app, pilot):  # the same session again
+        again = app.kymo_line
+        assert again is not None and (again.x0, again.y1, again.width) == (ln.x0, ln.y1, ln.width)
 
 
 @pytest.mark.parametrize("size", [(80, 24), (200, 60)])

@@ -14,7 +14,7 @@ LINE_WIDTHS = (1, 3, 5, 9, 15)
 LINE_LENGTH = 64  # pixels of the default line across the front
 CLIP_FRAMES = 10  # before and from the event on, as `reviewer clip`'s defaults
 CLIP_CROP = 96
-META_LINE = "kymograph_line"  # the session's meta key, once the store keeps it
+META_LINE = "kymograph_line"  # the session's meta key (store/meta.py)
 
 
 class KymoActions:
@@ -32,18 +32,13 @@ class KymoActions:
             self.line_saved_in_session = self.kymo_line is not None
 
     def _keep_line(self) -> None:
-        """Into the session's meta when the store takes the key; else kept for this run only."""
-        from reviewer.store import meta as store_meta
-
+        """Into the session's meta (kept for this run only when the session cannot be written)."""
         ln = self.kymo_line
-        if ln is None or META_LINE not in getattr(store_meta, "KEYS", ()):
+        if ln is None:
             self.line_saved_in_session = False
             return
-        try:
-            ok, _ = self.write("saving the kymograph line", self.session.update_meta,
-                               **{META_LINE: [ln.x0, ln.y0, ln.x1, ln.y1, ln.width]})
-        except (TypeError, ValueError):  # the store does not take a list there: memory only
-            ok = False
+        ok, _ = self.write("saving the kymograph line", self.session.update_meta,
+                           **{META_LINE: [ln.x0, ln.y0, ln.x1, ln.y1, ln.width]})
         self.line_saved_in_session = ok
 
     def default_line(self):
