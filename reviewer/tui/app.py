@@ -192,20 +192,14 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
         """Draw the current frame, its mark, the timeline cursor and the status line."""
         from reviewer.errors import BadInput
 
-        try:
-            image = self.movie.frame(self.frame)
+        try:  # reduced to the pane as it is read; damaged neighbours are left out of the windows
+            self.frameview.show_at(self.movie, self.frame, window=CONTEXT_FRAMES)
         except (BadInput, OSError, ValueError) as exc:
             self.frameview.show_unreadable(f"frame {self.frame}: {exc}")
             if self.frame not in self._unreadable:
                 self._unreadable.add(self.frame)
                 self.notify(f"frame {self.frame} cannot be read ({exc}); shown as a placeholder",
                             severity="warning", timeout=8)
-        else:
-            try:
-                before, after = self.context(self.frame)
-            except (BadInput, OSError, ValueError):
-                before = after = None  # the neighbours are damaged: this frame alone
-            self.frameview.show(image, before=before, after=after)
         ev = self.current_event()
         if ev is not None and ev.x is not None and ev.y is not None:
             self.frameview.set_mark(ev.x, ev.y)
