@@ -64,10 +64,12 @@ class FrameView(Widget):
     FrameView { width: 1fr; height: 1fr; background: #000000; }
     """
 
-    def __init__(self, *, system: str | None = None, name: str | None = None,
-                 id: str | None = None, classes: str | None = None) -> None:
+    def __init__(self, *, system: str | None = None, prefetch: bool = True,
+                 name: str | None = None, id: str | None = None,
+                 classes: str | None = None) -> None:
         super().__init__(name=name, id=id, classes=classes)
         self._system_override = system
+        self._prefetch = prefetch  # reduce neighbouring frames in a worker thread
         self._mode = "frame"
         self._source = None  # a movie, or _Frames for show()
         self._frames: ReducedFrames | None = None
@@ -143,7 +145,7 @@ class FrameView(Widget):
         read and reduced here (raising what the movie raises when the frame cannot be read) when
         the pane has a size, else when it is drawn."""
         if movie is not self._source:
-            self._use_source(movie, ReducedFrames(movie))
+            self._use_source(movie, ReducedFrames(movie, prefetch=self._prefetch))
         index = int(index)
         if index != self._index:
             self._direction = 1 if index > self._index else -1
