@@ -4,23 +4,16 @@ sliding window sums, what is read, and the same contrast rules for 8-, 16-bit an
 from __future__ import annotations
 
 import asyncio
-import functools
 import time
 
 import numpy as np
 import pytest
+from test_tui_view_widgets import sync
 from textual.app import App, ComposeResult
 
 from reviewer.movie import ArrayMovie
 from reviewer.tui.frames_cache import Grid, ReducedFrames, block_mean, grid_for, neighbours
 from reviewer.tui.frameview import FrameView
-
-
-def sync(test):
-    @functools.wraps(test)
-    def run(*args, **kwargs):
-        return asyncio.run(test(*args, **kwargs))
-    return run
 
 
 class One(App):
