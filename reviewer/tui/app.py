@@ -44,8 +44,10 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
         Binding("ctrl+q", "quit", show=False, priority=True)]
 
     def __init__(self, movie, session, *, keymap: km.KeyMap, labels: list[str], scan=None,
-                 advance: bool = False, run_scan: bool = True, play_fps: float = 12.0) -> None:
+                 advance: bool = False, run_scan: bool = True, play_fps: float = 12.0,
+                 graphics: str = "blocks") -> None:
         super().__init__()
+        self.graphics = graphics  # how the frame view draws: half-blocks, or kitty / sixel pixels
         self.movie = movie
         self.session = session
         self.keymap = keymap
@@ -75,7 +77,7 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
 
         yield Banner(id="banner")
         with Horizontal(id="body"):
-            yield FrameView(id="frame")
+            yield FrameView(id="frame", graphics=self.graphics)
             yield EventList(id="events")
         yield Timeline(id="timeline")
         yield ProgressBar(id="scanbar", total=self.movie.n_frames, show_eta=True)
@@ -279,7 +281,7 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
 def make_app(movie, *, fps: float | None = None, keymap: str | None = None,
              session_dir: str | os.PathLike | None = None, advance: bool = False,
              run_scan: bool = True, play_fps: float | None = None,
-             reclaim: bool = False) -> ReviewApp:
+             reclaim: bool = False, graphics: str = "blocks") -> ReviewApp:
     """Open everything the review needs; BadInput for any bad file (before the screen opens)."""
     from reviewer.store.session import Session
 
@@ -310,4 +312,4 @@ def make_app(movie, *, fps: float | None = None, keymap: str | None = None,
     if play_fps is None:
         play_fps = float(os.environ.get("REVIEWER_PLAY_FPS", "12") or 12)
     return ReviewApp(movie, session, keymap=keys, labels=labels, scan=scan, advance=advance,
-                     run_scan=run_scan, play_fps=play_fps)
+                     run_scan=run_scan, play_fps=play_fps, graphics=graphics)

@@ -23,10 +23,11 @@ from textual.filter import ANSIToTruecolor, LineFilter
 from textual.strip import Strip
 from textual.widget import Widget
 
-from reviewer.tui import render
+from reviewer.tui import frame_pixels, render
 from reviewer.tui.frames_cache import Grid, ReducedFrames, grid_for, neighbours
 
 MODES = ("frame", "change", "average")
+GRAPHICS = ("blocks", "kitty", "sixel")
 CLIPS = (0.0, 0.05, 0.1, 0.25, 0.5, 1.0, 2.0, 5.0, 10.0, 20.0)  # % clipped at each end
 DEFAULT_CLIP = CLIPS.index(0.5)
 # The change view is scaled in units of its own noise: the contrast steps give the number of noise
@@ -34,7 +35,7 @@ DEFAULT_CLIP = CLIPS.index(0.5)
 CHANGE_SDS = (12.0, 10.0, 8.0, 7.0, 6.0, 5.0, 4.0, 3.0, 2.5, 2.0)
 CHANGE_SMOOTH_PX = 1.0  # Gaussian sigma: shot noise is per pixel, a growth front spans several
 MAX_ZOOM = 64.0
-MARK_RGB = (255, 64, 200)  # pink: stands out on greys, blue and amber
+MARK_RGB = frame_pixels.MARK_RGB  # pink: stands out on greys, blue and amber
 MARK_GLYPHS = ("\u250c", "\u2510", "\u2514", "\u2518")  # corners around the marked spot
 
 
@@ -57,7 +58,7 @@ class _Frames:
         return self._frames[i]
 
 
-class FrameView(Widget):
+class FrameView(frame_pixels.TruePixels, Widget):
     """Shows one frame (or a change / average of a few) fitted to the pane, aspect kept."""
 
     DEFAULT_CSS = """
@@ -65,9 +66,15 @@ class FrameView(Widget):
     """
 
     def __init__(self, *, system: str | None = None, prefetch: bool = True,
+                 graphics: str = "blocks", cell_px: tuple[int, int] | None = None,
                  name: str | None = None, id: str | None = None,
                  classes: str | None = None) -> None:
         super().__init__(name=name, id=id, classes=classes)
+        if graphics not in GRAPHICS:
+            raise ValueError(f"graphics must be one of {GRAPHICS}, got {graphics!r}")
+        self.graphics = graphics  # "blocks" (half-block cells) or a true-pixel protocol
+        self._cell_px = cell_px  # (width, height) of a cell in pixels; asked of the tty if None
+        self._sequence = ""  # the true-pixel escape sequence of the last build
         self._system_override = system
         self._prefetch = prefetch  # reduce neighbouring frames in a worker thread
         self._mode = "frame"
@@ -166,27 +173,16 @@ class FrameView(Widget):
     def on_unmount(self) -> None:
         if self._frames is not None:
             self._frames.close()
+        if self.graphics == "kitty":
+            from reviewer.tui.graphics import kitty_delete
+
+            self._sequence = kitty_delete()
+            self._send_graphics()
 
     def show_unreadable(self, why: str) -> None:
         """Draw a hatched placeholder saying why, instead of a frame that could not be read."""
         self.unreadable = " ".join(str(why).split())
         self._invalidate()
-
-    def _placeholder(self, rows: int, cols: int) -> list[Strip]:
-        hatch = Style(color="grey50", bgcolor="grey15")
-        label = Style(color="white", bgcolor="dark_red", bold=True)
-        text = f" UNREADABLE  {self.unreadable} "[: max(cols - 2, 0)]
-        out = []
-        for y in range(rows):
-            line = "".join("╱" if (x + y) % 4 == 0 else " " for x in range(cols))
-            if y == rows // 2 and text:
-                left = max((cols - len(text)) // 2, 0)
-                segs = [Segment(line[:left], hatch), Segment(text, label),
-                        Segment(line[left + len(text):], hatch)]
-            else:
-                segs = [Segment(line, hatch)]
-            out.append(Strip(segs, cols))
-        return out
 
     def set_mark(self, x: float | None, y: float | None = None) -> None:
         """Mark a spot in frame pixels; ``set_mark(None)`` removes it."""
@@ -257,11 +253,17 @@ class FrameView(Widget):
         y0, y1, x0, x1 = self.view_region()
         return render.fit(y1 - y0, x1 - x0, max(rows, 1), max(cols, 1))
 
+    def _out_size(self, rows: int, cols: int) -> tuple[int, int]:
+        """Pixels the view is drawn with: half-block pixels, or the pane's true pixels."""
+        if self.graphics == "blocks":
+            return self._target(rows, cols)[:2]
+        return self._pixel_placement(rows, cols)[:2]
+
     def _ensure_view(self, rows: int, cols: int) -> np.ndarray | None:
         """The reduced image of the current mode for a pane of rows x cols cells."""
         if self._frames is None:
             return None
-        out_h, out_w, _, _ = self._target(rows, cols)
+        out_h, out_w = self._out_size(rows, cols)
         grid = grid_for(self.view_region(), out_h, out_w)
         key = (self._mode, self._index, grid)
         if key == self._view_key:
@@ -383,8 +385,23 @@ class FrameView(Widget):
                 canvas, place = self.canvas(rows, cols)
             except Exception as exc:  # noqa: BLE001 - any reader failure: say so in the pane
                 self.unreadable = " ".join(f"frame {self._index}: {exc}".split())
+        if self.unreadable is None and self.graphics != "blocks":
+            try:
+                region = self.content_region
+                self._sequence = self.graphics_sequence(rows, cols, region.y, region.x)
+            except Exception as exc:  # noqa: BLE001 - any reader failure: say so in the pane
+                self.unreadable = " ".join(f"frame {self._index}: {exc}".split())
+            else:
+                self.call_after_refresh(self._send_graphics)
+                blank = Style.from_color(bgcolor=Color.from_rgb(0, 0, 0))
+                return [Strip([Segment(" " * cols, blank)], cols) for _ in range(rows)]
         if self.unreadable is not None:
-            return self._placeholder(rows, cols)
+            if self.graphics == "kitty":  # the last picture would stay over the placeholder
+                from reviewer.tui.graphics import kitty_delete
+
+                self._sequence = kitty_delete()
+                self.call_after_refresh(self._send_graphics)
+            return render.placeholder_strips(f" UNREADABLE  {self.unreadable} ", rows, cols)
         system = self.system
         palette = "change" if self._mode == "change" else "grey"
         table = render.segment_table(palette, system)
