@@ -11,8 +11,8 @@ import time
 
 import numpy as np
 import pytest
+from test_tui_view_frames import One as Pane  # a 40 x 12 cell frame view
 from test_tui_view_widgets import sync
-from textual.app import App, ComposeResult
 
 from reviewer.tui import graphics
 from reviewer.tui.frameview import FrameView
@@ -113,17 +113,6 @@ def test_sixel_decodes_to_the_grey_levels():
     assert np.abs(shown.astype(int) - grey.astype(int)).max() <= step / 2 + 2.6  # + percent rounding
 
 
-class Pane(App):
-    CSS = "FrameView { width: 36; height: 12; }"
-
-    def __init__(self, widget) -> None:
-        super().__init__()
-        self.widget = widget
-
-    def compose(self) -> ComposeResult:
-        yield self.widget
-
-
 def expected_indices(frame: np.ndarray, k: int) -> np.ndarray:
     """k x k block means of the frame, mapped with the 0.5 / 99.5 % percentiles (numpy) of them."""
     h, w = frame.shape
@@ -141,8 +130,8 @@ async def test_frame_view_draws_the_expected_pixels(kind):
     async with Pane(fv).run_test(size=(40, 14)) as pilot:
         fv.show(frame)
         await pilot.pause()
-        seq = fv.graphics_sequence(12, 36)
-        # the pane is 36 x 12 cells of 4 x 8 px = 144 x 96 px: the frame fits at k = 2
+        seq = fv.graphics_sequence(12, 40)
+        # the pane is 40 x 12 cells of 4 x 8 px = 160 x 96 px: the frame fits at k = 2, in 36 cells
         want = expected_indices(frame, 2)
         if kind == "kitty":
             keys, rgb = decode_kitty(seq)
@@ -165,7 +154,7 @@ async def test_the_mark_is_burnt_into_the_pixels():
         fv.show(np.zeros((96, 144), dtype=np.uint16))
         fv.set_mark(72, 48)
         await pilot.pause()
-        _, rgb = decode_kitty(fv.graphics_sequence(12, 36))
+        _, rgb = decode_kitty(fv.graphics_sequence(12, 40))
         pink = (rgb == (255, 64, 200)).all(axis=2)
         ys, xs = np.nonzero(pink)
         assert pink.any() and abs(ys.mean() - 48) < 2 and abs(xs.mean() - 72) < 2

@@ -86,15 +86,9 @@ class TruePixels:
         """For true-pixel drawing: the uint8 palette indices of the image at the pane's pixel
         size, the mask of the mark (None without one) and the placement (out_h, out_w, top, left,
         cell_rows, cell_cols)."""
-        view = self._ensure_view(rows, cols)
         place = self._pixel_placement(rows, cols)
         out_h, out_w = place[:2]
-        small = render.resample(view, out_h, out_w)
-        lo, hi = self.limits()
-        if self._mode == "change":
-            idx = render.signed_to_indices(small, hi)
-        else:
-            idx = render.to_indices(small, lo, hi)
+        idx = self.indices(rows, cols, out_h, out_w)
         mask = None
         if self._mark is not None:
             y0, y1, x0, x1 = self.view_region()

@@ -343,17 +343,19 @@ class FrameView(frame_pixels.TruePixels, Widget):
         canvas = np.full((2 * rows, cols), render.ZERO_INDEX[palette], dtype=np.uint8)
         if self._frames is None or rows < 1 or cols < 1:
             return canvas, (0, 0, 0, 0)
-        view = self._ensure_view(rows, cols)
         place = self._target(rows, cols)
         out_h, out_w, top, left = place
-        small = render.resample(view, out_h, out_w)
+        canvas[top:top + out_h, left:left + out_w] = self.indices(rows, cols, out_h, out_w)
+        return canvas, place
+
+    def indices(self, rows: int, cols: int, out_h: int, out_w: int) -> np.ndarray:
+        """The view of a rows x cols pane resized to out_h x out_w pixels, as palette indices
+        (grey, or the signed change palette) after the contrast."""
+        small = render.resample(self._ensure_view(rows, cols), out_h, out_w)
         lo, hi = self.limits()
         if self._mode == "change":
-            idx = render.signed_to_indices(small, hi)
-        else:
-            idx = render.to_indices(small, lo, hi)
-        canvas[top:top + out_h, left:left + out_w] = idx
-        return canvas, place
+            return render.signed_to_indices(small, hi)
+        return render.to_indices(small, lo, hi)
 
     def mark_cell(self, place: tuple[int, int, int, int]) -> tuple[int, int] | None:
         """(row, col) of the cell holding the marked pixel, or None when not visible."""
