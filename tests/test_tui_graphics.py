@@ -142,7 +142,8 @@ async def test_frame_view_draws_the_expected_pixels(kind):
             image, colours = decode_sixel(seq)
             assert image.shape == (96, 144)
             shown = np.array([colours[r][0] for r in image.ravel()]).reshape(image.shape)
-            assert np.abs(shown - want.astype(int)).max() <= 255 / 63 / 2 + 3
+            step = 255 / (graphics.SIXEL_LEVELS - 1)
+            assert np.abs(shown - want.astype(int)).max() <= step / 2 + 3
         lines = [fv.render_line(y).text for y in range(12)]
         assert all(set(line) <= {" "} for line in lines)  # the cells under the picture are blank
 

@@ -23,7 +23,7 @@ import numpy as np
 
 KITTY_CHUNK = 4096
 KITTY_ID = 7231  # our image id (any number; one image per frame view)
-SIXEL_LEVELS = 64  # grey levels (colour registers) sent in Sixel
+SIXEL_LEVELS = 32  # grey levels (colour registers) sent in Sixel: each costs a pass per band
 
 
 def kitty_image(rgb: np.ndarray, cols: int, rows: int, *, image_id: int = KITTY_ID,
@@ -60,15 +60,57 @@ def grey_levels(image: np.ndarray, levels: int = SIXEL_LEVELS) -> np.ndarray:
     return np.rint(np.asarray(image, dtype=np.float32) * ((levels - 1) / 255.0)).astype(np.int32)
 
 
-def _runs(chars: np.ndarray) -> str:
-    """One sixel row with repeats: ``!N`` for runs longer than three."""
-    starts = np.flatnonzero(np.diff(chars, prepend=-1))
-    lengths = np.diff(np.append(starts, len(chars)))
-    out = []
-    for c, n in zip(chars[starts].tolist(), lengths.tolist(), strict=True):
-        ch = chr(c)
-        out.append(ch * n if n <= 3 else f"!{n}{ch}")
-    return "".join(out)
+def _sixel_rows(idx: np.ndarray, n_colours: int) -> np.ndarray:
+    """For every band of six rows and every register: the six-bit column values, shape
+    (bands, registers, width)."""
+    h, w = idx.shape
+    bands = -(-h // 6)
+    bits = np.zeros((bands, n_colours, w), dtype=np.uint8)
+    cols = np.arange(w)[None, :]
+    for r in range(6):  # (band, register, column) is unique within one pixel row of each band
+        rows = idx[r::6]
+        bits[np.arange(rows.shape[0])[:, None], rows, cols] |= np.uint8(1 << r)
+    return bits
+
+
+def _encode_runs(chars: np.ndarray, row_of: np.ndarray) -> list[bytes]:
+    """Sixel data with repeats (``!N`` for runs longer than three), per row: ``chars`` are the
+    data characters of all rows end to end, ``row_of`` the row of each. Vectorised: runs never
+    cross rows."""
+    n = len(chars)
+    if n == 0:
+        return []
+    start = np.ones(n, dtype=bool)
+    start[1:] = (chars[1:] != chars[:-1]) | (row_of[1:] != row_of[:-1])
+    pos = np.flatnonzero(start)
+    length = np.diff(np.append(pos, n))
+    value = chars[pos]
+    long = length > 3
+    digits = np.where(long, np.floor(np.log10(np.maximum(length, 1))).astype(np.int64) + 1, 0)
+    size = np.where(long, 2 + digits, length)
+    first = np.concatenate([[0], np.cumsum(size)[:-1]])
+    out = np.empty(int(size.sum()), dtype=np.uint8)
+    short = ~long
+    reps = length[short]
+    out[np.repeat(first[short], reps) + _ranges(reps)] = np.repeat(value[short], reps)
+    lf, ll, ld = first[long], length[long], digits[long]
+    out[lf] = ord("!")
+    for j in range(int(ld.max()) if len(ld) else 0):  # digit j from the left, where there is one
+        has = ld > j
+        out[lf[has] + 1 + j] = ord("0") + (ll[has] // 10 ** (ld[has] - 1 - j)) % 10
+    out[lf + 1 + ld] = value[long]
+    row_runs = np.flatnonzero(np.diff(np.append(row_of[pos], -1)))  # last run of each row
+    ends = (first + size)[row_runs]
+    data = out.tobytes()
+    return [data[a:b] for a, b in zip([0, *ends[:-1].tolist()], ends.tolist(), strict=True)]
+
+
+def _ranges(lengths: np.ndarray) -> np.ndarray:
+    """0..n-1 for each n in lengths, end to end."""
+    if not len(lengths):
+        return np.empty(0, dtype=np.int64)
+    ends = np.cumsum(lengths)
+    return np.arange(ends[-1]) - np.repeat(ends - lengths, lengths)
 
 
 def sixel_image(indices: np.ndarray, palette: np.ndarray) -> str:
@@ -79,18 +121,21 @@ def sixel_image(indices: np.ndarray, palette: np.ndarray) -> str:
         raise ValueError(f"need a 2-D image of register numbers, got {idx.shape}")
     pal = np.asarray(palette, dtype=np.float64)
     h, w = idx.shape
-    out = ['\x1bP0;1;0q', f'"1;1;{w};{h}']
+    head = ['\x1bP0;1;0q', f'"1;1;{w};{h}']
     for n, (r, g, b) in enumerate(np.rint(pal * (100.0 / 255.0)).astype(int).tolist()):
-        out.append(f"#{n};2;{r};{g};{b}")
-    weights = (1 << np.arange(6))[:, None]
-    for y in range(0, h, 6):
-        band = idx[y:y + 6]
-        lines = []
-        for c in np.unique(band).tolist():
-            bits = ((band == c) * weights[: band.shape[0]]).sum(axis=0)
-            last = int(np.flatnonzero(bits)[-1]) + 1  # columns after the last set bit are left out
-            lines.append(f"#{c}" + _runs((bits[:last] + 63).astype(np.int64)))
-        out.append("$".join(lines) + "-")
+        head.append(f"#{n};2;{r};{g};{b}")
+    bits = _sixel_rows(idx.astype(np.intp), len(pal))
+    band, colour = np.nonzero(bits.any(axis=2))  # the rows that draw something, in band order
+    sel = bits[band, colour]  # (rows, w)
+    last = w - np.argmax(sel[:, ::-1] != 0, axis=1)  # columns after the last set bit are left out
+    keep = np.arange(w)[None, :] < last[:, None]
+    chars = (sel[keep] + 63).astype(np.uint8)
+    row_of = np.nonzero(keep)[0]
+    bodies = _encode_runs(chars, row_of)
+    out = ["".join(head)]
+    for k, (b, c) in enumerate(zip(band.tolist(), colour.tolist(), strict=True)):
+        newband = k + 1 == len(band) or band[k + 1] != b
+        out.append(f"#{c}{bodies[k].decode('ascii')}{'-' if newband else '$'}")
     out.append("\x1b\\")
     return "".join(out)
 
