@@ -260,3 +260,24 @@ def test_review_in_a_terminal_that_never_answers_starts_at_once(tmp_path):
     assert asked is not None, got[-300:]
     assert started is not None and started - asked < 1.0, started - asked
     print(f"UI started {started - asked:.2f} s after the question")
+
+
+@sync
+async def test_the_picture_is_sent_to_the_terminal_after_the_repaint():
+    fv = FrameView(system="truecolor", graphics="kitty", cell_px=(4, 8), prefetch=False)
+    app = Pane(fv)
+    async with app.run_test(size=(40, 14)) as pilot:
+        sent: list[str] = []
+        app._driver.write = sent.append
+        fv.show(np.arange(96 * 144, dtype=np.uint16).reshape(96, 144))
+        await pilot.pause()
+        await pilot.pause()
+        pictures = [s for s in sent if "\x1b_G" in s]
+        assert pictures, "nothing sent"
+        keys, rgb = decode_kitty(pictures[-1])
+        assert rgb.shape == (96, 144, 3) and rgb[0, 0, 0] < rgb[-1, -1, 0]
+        sent.clear()
+        fv.show_unreadable("gone")
+        await pilot.pause()
+        await pilot.pause()
+        assert any("a=d" in s for s in sent)  # the picture is taken away for the placeholder
