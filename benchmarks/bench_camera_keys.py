@@ -14,7 +14,7 @@ colours: the top 50 rows from `capture-pane -e`) differ from before too. In this
   before / after windows onto a frame never read before);
 - "view (t)": at --rounds/4 new places `t` three times (what changed, average, frame), then `right`.
 Between presses the probe waits --pause seconds (a reviewer looks at a frame before the next key;
-0 presses back to back). Presses with no repaint within 5 s count as failures at 5000 ms.
+0 presses back to back). Presses with no repaint within 30 s count as failures at 30 s.
 Peak memory: the review process's VmHWM and RssAnon from /proc just before it quits (the frames are
 read from the page cache, which is not counted).
 
@@ -37,8 +37,9 @@ from pathlib import Path
 import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from bench_keys import TIMEOUT_S, Probe, status, tmux  # noqa: E402
+from bench_keys import Probe, status, tmux  # noqa: E402
 
+TIMEOUT_S = 30.0  # the main branch took seconds per step of the change view at 4096²
 TARGETS_MS = {"step": 50.0, "change step": 150.0, "view (t)": 150.0}
 DOSE = 400.0
 
