@@ -16,7 +16,7 @@ from loupe_movies import BACKGROUND, LAYER_FRAME, PLATELET, LayerMovie
 
 from reviewer.movie.kymograph import auto_bin, kymograph
 from reviewer.store.session import Session
-from reviewer.tui.app import ReviewApp
+from reviewer.tui.app import CONTEXT_FRAMES, ReviewApp
 from reviewer.tui.keymap import load_keymap
 from reviewer.tui.kymopane import mark_kinds
 from reviewer.tui.labels import load_labels
@@ -91,10 +91,14 @@ async def test_acceptance_blink_in_the_loupe_shows_the_layer_on_a_2048_movie(tmp
         sd_steps = math.sqrt(2 * PLATELET / app.blink_n) * 255 / (hi - lo)
         assert layer.mean() > 0.8 * min((PLATELET - BACKGROUND) * 255 / (hi - lo), 255)
         assert others.max() < 6 * sd_steps + 1
-        # frames read: the two shown (0 at the start, 20) and the blink's 2 x 5, nothing more
-        n = app.blink_n
-        assert set(movie.reads) <= {0, LAYER_FRAME} | set(range(LAYER_FRAME - n, LAYER_FRAME + n))
-        assert len(movie.reads) <= 2 + 2 * n
+        # frames read: the frame view's windows around the two frames shown (0 at the start, 20;
+        # reduced, with its prefetch of the next frame), and at full resolution the
+        # loupe's frame and the blink's 2 x 5, nothing more
+        n, w = app.blink_n, CONTEXT_FRAMES
+        view = set(range(0, w + 2)) | set(range(LAYER_FRAME - w - 1, LAYER_FRAME + w + 2))
+        assert set(movie.reads) <= view | set(range(LAYER_FRAME - n, LAYER_FRAME + n))
+        # (the view reads its windows again once: opening the loupe narrows it to a new grid)
+        assert len(movie.reads) <= 2 * len(view) + 1 + 2 * n
         count = len(movie.reads)
         await _press(pilot, "B", "B", "B")  # flipping reads nothing again
         assert len(movie.reads) == count
@@ -279,7 +283,7 @@ async def test_whole_movie_kymograph_is_binned_to_fit_and_read_in_the_background
         assert kinds[LAYER_FRAME // k] == 2  # the cursor is on the event's frame
         await _press(pilot, "right")
         # frames read: 0, 20, 21 shown; the frames around the cursor (the first K); the pass once
-        assert len(movie.reads) <= 3 + pane.frames_shown() + 400
+        assert len(movie.reads) <= 3 + pane.frames_shown() + 400 + 2 * CONTEXT_FRAMES + 3  # + the frame view's windows
         await _press(pilot, "I")
         assert tifffile.imread(tmp_path / "layer.kymograph.tif").shape == pane.image.shape
         await _press(pilot, "K")

@@ -30,6 +30,9 @@ def add_review_options(p: argparse.ArgumentParser) -> None:
     p.add_argument("--advance", action="store_true",
                    help="after a decision, go on to the next pending candidate")
     p.add_argument("--mouse", action="store_true", help="enable the mouse (off by default)")
+    p.add_argument("--graphics", choices=("auto", "blocks", "kitty", "sixel"), default="auto",
+                   help="draw the frame in true pixels with the Kitty graphics protocol or Sixel; "
+                        "auto asks the terminal (half-blocks when it does not answer, and in tmux)")
     p.add_argument("--reclaim-lock", action="store_true",
                    help="take over a session left locked by a reviewer that is no longer running "
                         "(killed or crashed); without it such a session opens read-only")
@@ -64,9 +67,12 @@ def review(movie, args: argparse.Namespace) -> int:
         args.movie = str(movie)
         movie = open_checked(args)
 
+    from reviewer.tui.graphics_query import choose_graphics
+
     app = make_app(movie, fps=args.fps, keymap=args.keymap, session_dir=args.session,
                    advance=args.advance, reclaim=args.reclaim_lock)
     set_session_options(app.session, who, pixel_nm)
+    app.graphics = choose_graphics(getattr(args, "graphics", "blocks"))  # just before the UI
     restore = install_signal_savers(app.session, app.on_signal_exit)
     try:
         app.run(mouse=args.mouse)

@@ -47,8 +47,10 @@ class ReviewApp(SeeingMixin, GuardMixin, ScanMixin, ReviewActions, App):
         Binding("ctrl+c", "quit", show=False, priority=True)]  # our quit (saves), not Textual's
 
     def __init__(self, movie, session, *, keymap: km.KeyMap, labels: list[str], scan=None,
-                 advance: bool = False, run_scan: bool = True, play_fps: float = 12.0) -> None:
+                 advance: bool = False, run_scan: bool = True, play_fps: float = 12.0,
+                 graphics: str = "blocks") -> None:
         super().__init__()
+        self.graphics = graphics  # how the frame view draws: half-blocks, or kitty / sixel pixels
         self.movie = movie
         self.session = session
         self.keymap = keymap
@@ -80,7 +82,7 @@ class ReviewApp(SeeingMixin, GuardMixin, ScanMixin, ReviewActions, App):
 
         yield Banner(id="banner")
         with Horizontal(id="body"):
-            yield FrameView(id="frame")
+            yield FrameView(id="frame", graphics=self.graphics)
             yield from self.compose_seeing()  # loupe and kymograph column (tui/seeing.py)
             yield EventList(id="events")
         yield from self.compose_scale()
@@ -201,27 +203,20 @@ class ReviewApp(SeeingMixin, GuardMixin, ScanMixin, ReviewActions, App):
         """Draw the current frame, its mark, the timeline cursor and the status line."""
         from reviewer.errors import BadInput
 
-        try:
-            image = self.movie.frame(self.frame)
+        try:  # reduced to the pane as it is read; damaged neighbours are left out of the windows
+            self.frameview.show_at(self.movie, self.frame, window=CONTEXT_FRAMES)
         except (BadInput, OSError, ValueError) as exc:
-            image = None
             self.frameview.show_unreadable(f"frame {self.frame}: {exc}")
             if self.frame not in self._unreadable:
                 self._unreadable.add(self.frame)
                 self.notify(f"frame {self.frame} cannot be read ({exc}); shown as a placeholder",
                             severity="warning", timeout=8)
-        else:
-            try:
-                before, after = self.context(self.frame)
-            except (BadInput, OSError, ValueError):
-                before = after = None  # the neighbours are damaged: this frame alone
-            self.frameview.show(image, before=before, after=after)
         ev = self.current_event()
         if ev is not None and ev.x is not None and ev.y is not None:
             self.frameview.set_mark(ev.x, ev.y)
         else:
             self.frameview.set_mark(None)
-        self.show_seeing(image)
+        self.show_seeing()
         self.timeline.set_position(self.frame)
         if ev is not None:
             self.eventlist.select_event(ev.event_id)
@@ -307,7 +302,7 @@ class ReviewApp(SeeingMixin, GuardMixin, ScanMixin, ReviewActions, App):
 def make_app(movie, *, fps: float | None = None, keymap: str | None = None,
              session_dir: str | os.PathLike | None = None, advance: bool = False,
              run_scan: bool = True, play_fps: float | None = None,
-             reclaim: bool = False) -> ReviewApp:
+             reclaim: bool = False, graphics: str = "blocks") -> ReviewApp:
     """Open everything the review needs; BadInput for any bad file (before the screen opens)."""
     from reviewer.store.session import Session
 
@@ -338,4 +333,4 @@ def make_app(movie, *, fps: float | None = None, keymap: str | None = None,
     if play_fps is None:
         play_fps = float(os.environ.get("REVIEWER_PLAY_FPS", "12") or 12)
     return ReviewApp(movie, session, keymap=keys, labels=labels, scan=scan, advance=advance,
-                     run_scan=run_scan, play_fps=play_fps)
+                     run_scan=run_scan, play_fps=play_fps, graphics=graphics)

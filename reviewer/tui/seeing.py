@@ -43,7 +43,7 @@ class SeeingMixin(KymoActions):
         self._kymo_window = None
         self.cross: tuple[float, float] | None = None  # while a line is placed
         self.cross_points: list[tuple[float, float]] = []
-        self._seen_image: np.ndarray | None = None
+        self._seen: tuple[int, np.ndarray | None] | None = None  # (frame, full-resolution pixels)
         self.restore_line()
 
     # ---- composing and layout -------------------------------------------------------------------
@@ -128,10 +128,32 @@ class SeeingMixin(KymoActions):
         return self._blink_means[before], self._blink_means[after], before, after
 
     # ---- drawing (app.show_frame calls show_seeing with the frame it shows) ---------------------
-    def show_seeing(self, image: np.ndarray | None) -> None:
+    def seen_image(self) -> np.ndarray | None:
+        """The viewed frame at full resolution, read once per frame and only when the loupe, the
+        blink, the kymograph or the crosshair asks (the frame view reads reduced frames); None when
+        it cannot be read."""
         from reviewer.errors import BadInput
 
-        self._seen_image = image
+        if self._seen is None or self._seen[0] != self.frame:
+            try:
+                image = self.movie.frame(self.frame)
+            except (BadInput, OSError, ValueError):
+                image = None
+            self._seen = (self.frame, image)
+        return self._seen[1]
+
+    def seeing_shown(self) -> bool:
+        """Whether anything of ours needs the full-resolution frame now."""
+        return bool(self.loupe_on or self.kymo_on or self.blink_side is not None
+                    or self.cross is not None)
+
+    def show_seeing(self, image: np.ndarray | None = None) -> None:
+        from reviewer.errors import BadInput
+
+        if not self.seeing_shown():
+            self._draw_scale()
+            return
+        image = self.seen_image() if image is None else image
         if self.blink_side is not None and self.frameview.mode != "frame":
             self._end_blink(restore=False)  # another view was chosen
         shown, others, label = image, (), ""
@@ -201,8 +223,8 @@ class SeeingMixin(KymoActions):
 
     def _refresh_seeing(self) -> None:
         self.fit_seeing()
-        if self._seen_image is not None:
-            self.call_after_refresh(self.show_seeing, self._seen_image)
+        if self.seen_image() is not None:
+            self.call_after_refresh(self.show_seeing, self.seen_image())
         self.update_status()
 
     # ---- loupe keys -----------------------------------------------------------------------------
@@ -231,10 +253,10 @@ class SeeingMixin(KymoActions):
         self._show_blink()
 
     def _show_blink(self) -> None:
-        if self._seen_image is None:
+        if self.seen_image() is None:
             self.show_frame()
         else:
-            self.show_seeing(self._seen_image)
+            self.show_seeing(self.seen_image())
         self.update_status()
 
     def action_loupe_blink_auto(self) -> None:
@@ -254,6 +276,7 @@ class SeeingMixin(KymoActions):
             self._blink_timer = None
         self.blink_side = None
         self._blink_means.clear()
+        self.frameview.pin_limits(None)
         if restore and self._blink_saved_mode is not None:
             self.frameview.mode = self._blink_saved_mode
         self._blink_saved_mode = None
@@ -282,15 +305,10 @@ class SeeingMixin(KymoActions):
 
 def pin_frame_contrast(frameview, images) -> bool:
     """Give the frame view the same contrast for both blink images: its limits for every contrast
-    step from the pixels of all `images` together (sampled on a grid, as the frame view samples).
-    Relies on FrameView keeping its limits per contrast step in `_limits` (tests check it); False
-    when it does not, and the frame view then uses its own contrast for each image."""
-    from reviewer.tui import frameview as fv_module
+    step from the pixels of all `images` together (sampled on a grid, as the frame view samples);
+    False when there is no finite pixel (the frame view then uses its own contrast)."""
+    from reviewer.tui.frameview import CLIPS
 
-    limits = getattr(frameview, "_limits", None)
-    clips = getattr(fv_module, "CLIPS", None)
-    if not isinstance(limits, dict) or not clips:
-        return False
     samples = []
     for a in images:
         step = max(1, int(np.ceil(np.sqrt(a.size / (1 << 14)))))
@@ -299,7 +317,6 @@ def pin_frame_contrast(frameview, images) -> bool:
     values = values[np.isfinite(values)]
     if values.size == 0:
         return False
-    qs = np.percentile(values, [q for c in clips for q in (c, 100.0 - c)])
-    for i in range(len(clips)):
-        limits[i] = (float(qs[2 * i]), float(qs[2 * i + 1]))
+    qs = np.percentile(values, [q for c in CLIPS for q in (c, 100.0 - c)])
+    frameview.pin_limits({i: (float(qs[2 * i]), float(qs[2 * i + 1])) for i in range(len(CLIPS))})
     return True

@@ -42,7 +42,7 @@ class KymoActions:
         self.line_saved_in_session = ok
 
     def default_line(self):
-        image = self._seen_image
+        image = self.seen_image()
         if image is None:
             return None
         x, y = self.seeing_place()
@@ -90,7 +90,7 @@ class KymoActions:
         x, y = self.cross
         self.cross = (float(min(max(x + dx, 0), self.movie.width - 1)),
                       float(min(max(y + dy, 0), self.movie.height - 1)))
-        self.show_seeing(self._seen_image)
+        self.show_seeing(self.seen_image())
 
     def cross_point(self) -> None:
         if self.cross is None:
@@ -99,7 +99,7 @@ class KymoActions:
         if len(self.cross_points) < 2:
             self.say(f"line starts at x {self.cross[0]:.0f}, y {self.cross[1]:.0f}; move to the "
                      "end and press Enter")
-            self.show_seeing(self._seen_image)
+            self.show_seeing(self.seen_image())
             return
         (x0, y0), (x1, y1) = self.cross_points
         line = regions.fit_line(x0, y0, x1, y1, self.kymo_width, self.movie.height,
@@ -197,12 +197,12 @@ class KymoActions:
     def _whole_progress(self, key, frames: int) -> None:
         if self._whole_pending == key:
             self._whole_done_frames = frames
-            self._draw_kymograph(self._seen_image)
+            self._draw_kymograph(self.seen_image())
 
     def _whole_finished(self, key, image: np.ndarray) -> None:
         if self._whole_pending == key:
             self._whole, self._whole_pending = (key, image), None
-            self._draw_kymograph(self._seen_image)
+            self._draw_kymograph(self.seen_image())
 
     def _whole_failed(self, key, text: str) -> None:
         if self._whole_pending == key:
@@ -268,7 +268,7 @@ class KymoActions:
             return
         ln = self.kymo_line
         try:
-            got = self._kymograph_now(self._seen_image)
+            got = self._kymograph_now(self.seen_image())
             if got is None:
                 self.say("show the kymograph first (it saves what it shows)", warn=True)
                 return
