@@ -1,0 +1,124 @@
+"""One long movie split across Dask workers (reviewer/detect/split.py): a task measures the noise
+model on the first frames, one task per part scans its frames into the movie's cache folder (on the
+shared path), a last task stitches the parts and keeps the whole scan in the cache. Frames and
+features never travel: the client and the scheduler see paths, the plan, the model (a few numbers),
+one small dict per part and the stitched scan's meta."""
+
+from __future__ import annotations
+
+import resource
+import shutil
+import sys
+import time
+from collections.abc import Callable
+from pathlib import Path
+
+from reviewer.errors import BadInput
+
+
+def _open(path: str, opening: dict, fingerprint: str):
+    """The movie as the client opened it (`opening`: open_movie's keywords: fps, dataset, ...)."""
+    from reviewer.movie import open_movie
+
+    movie = open_movie(Path(path), show_progress=False, **opening)
+    if fingerprint and movie.fingerprint != fingerprint:
+        movie.close()
+        raise BadInput(f"{path}: the movie a worker sees is not the one given (another file at "
+                       "that path on this node?)")
+    return movie
+
+
+def _peak_mb() -> float:
+    """This process's peak resident memory (MiB; ru_maxrss is KiB on Linux, bytes on macOS)."""
+    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+    return round(peak / (1 << 20) if sys.platform == "darwin" else peak / 1024, 1)
+
+
+def model_task(path: str, settings: dict, opening: dict, fingerprint: str) -> dict:
+    from reviewer.detect import DetectSettings
+    from reviewer.detect.split import estimate_model
+
+    movie = _open(path, opening, fingerprint)
+    try:
+        return estimate_model(movie, DetectSettings.from_dict(settings))
+    finally:
+        movie.close()
+
+
+def part_task(path: str, settings: dict, opening: dict, fingerprint: str, part: dict,
+              model: dict | None, folder: str) -> dict:
+    from reviewer.detect import DetectSettings
+    from reviewer.detect.split import PARTS, Part, scan_part
+
+    p = Part(**part)
+    movie = _open(path, opening, fingerprint)
+    try:
+        out = scan_part(movie, DetectSettings.from_dict(settings), p, model,
+                        Path(folder) / PARTS / str(p.index))
+    finally:
+        movie.close()
+    return out | {"peak_mb": _peak_mb(), "worker": _worker()}
+
+
+def stitch_task(path: str, settings: dict, opening: dict, fingerprint: str, parts: list[dict],
+                results: list[dict], folder: str, seconds: float) -> dict:
+    """Stitch, propose once on the stitched features and keep the scan in `folder`; returns its
+    meta (the features stay on disk)."""
+    from reviewer.detect import DetectSettings, ScanResult, propose, save_scan
+    from reviewer.detect.split import PARTS, Part, stitch
+
+    s = DetectSettings.from_dict(settings)
+    movie = _open(path, opening, fingerprint)
+    try:
+        features, meta = stitch(movie, s, [Part(**p) for p in parts], results, folder, seconds)
+        save_scan(ScanResult(features=features, candidates=propose(features, s, movie.timing),
+                             settings=s.to_dict(), meta=meta), folder)
+    finally:
+        movie.close()
+    shutil.rmtree(Path(folder) / PARTS, ignore_errors=True)
+    return meta
+
+
+def _worker() -> str:
+    from reviewer.batch.job import _worker as name
+
+    return name()
+
+
+def split_scan(client, movie, settings, parts: int, folder: Path, opening: dict | None = None,
+               min_part: int | None = None,
+               progress: Callable[[int], None] | None = None) -> tuple[dict, dict]:
+    """Scan `movie` (opened here for its header only; `opening` the keywords it was opened with)
+    in up to `parts` parts on the client's workers, into the scan folder `folder`; returns
+    (features, meta) as compute_features does, the features memory-mapped from the cache."""
+    from distributed import as_completed
+
+    from reviewer.detect import load_scan
+    from reviewer.detect.split import MIN_PART, plan_parts
+
+    t0 = time.perf_counter()
+    plan = plan_parts(movie, settings, parts, min_part or MIN_PART)
+    common = (str(Path(movie.path).resolve()), settings.to_dict(), dict(opening or {}),
+              movie.fingerprint)
+    model = client.submit(model_task, *common, pure=False) if len(plan) > 1 else None
+    futures = [client.submit(part_task, *common, p.to_dict(), model, str(folder), pure=False)
+               for p in plan]
+    results = []
+    try:
+        for fut in as_completed(futures):
+            results.append(fut.result())
+            if progress is not None:
+                p = plan[results[-1]["index"]]
+                progress(p.stop - p.start)
+        meta = client.submit(stitch_task, *common, [p.to_dict() for p in plan], results,
+                             str(folder), round(time.perf_counter() - t0, 3), pure=False).result()
+    except BaseException:
+        client.cancel([f for f in futures if not f.done()])
+        raise
+    cached = load_scan(folder)
+    if cached is None:
+        raise BadInput(f"{folder}: the stitched scan could not be read back from the cache")
+    meta = dict(cached.meta) | {"seconds": round(time.perf_counter() - t0, 3),
+                                "workers": sorted({r["worker"] for r in results}),
+                                "peak_mb": max(r["peak_mb"] for r in results)}
+    return cached.features, meta
