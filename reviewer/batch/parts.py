@@ -100,9 +100,13 @@ def split_scan(client, movie, settings, parts: int, folder: Path, opening: dict 
     plan = plan_parts(movie, settings, parts, min_part or MIN_PART)
     common = (str(Path(movie.path).resolve()), settings.to_dict(), dict(opening or {}),
               movie.fingerprint)
-    model = client.submit(model_task, *common, pure=False) if len(plan) > 1 else None
-    futures = [client.submit(part_task, *common, p.to_dict(), model, str(folder), pure=False)
-               for p in plan]
+    # the model first (a few numbers), then the parts, one per worker in turn: parts depending
+    # on a model future would all be placed on the worker that holds it
+    model = client.submit(model_task, *common, pure=False).result() if len(plan) > 1 else None
+    workers = list(client.scheduler_info()["workers"]) or [None]
+    futures = [client.submit(part_task, *common, p.to_dict(), model, str(folder), pure=False,
+                             workers=workers[i % len(workers)], allow_other_workers=True)
+               for i, p in enumerate(plan)]
     results = []
     try:
         for fut in as_completed(futures):
