@@ -118,6 +118,9 @@ def split_scan(client, movie, settings, parts: int, folder: Path, opening: dict 
                              str(folder), round(time.perf_counter() - t0, 3), pure=False).result()
     except BaseException:
         client.cancel([f for f in futures if not f.done()])
+        from reviewer.detect.split import PARTS
+
+        shutil.rmtree(Path(folder) / PARTS, ignore_errors=True)  # the scan kept stays as it was
         raise
     cached = load_scan(folder)
     if cached is None:
