@@ -90,6 +90,19 @@ def test_blanked_frame_just_after_a_part_starts():
     pd.testing.assert_frame_equal(propose(fw, s), propose(fs, s))
 
 
+@pytest.mark.parametrize("s", [DetectSettings(read_block=24, chunk=200),
+                               DetectSettings(read_block=7, windows=(3, 10), outer=1)],
+                         ids=["blocks-24-chunk-200", "blocks-7-trend-windows"])
+def test_three_parts_with_other_blocks_and_windows(s):
+    """Blocks that do not divide the chunks, and the trend-free statistic: still the same."""
+    movie = ArrayMovie(_movie(9000, 4160, seed=1, blank_at=4100))
+    fw, _ = compute_features(movie, s)
+    fs, meta = scan_in_parts(movie, s, 3, min_part=MIN_JOIN)
+    assert meta["parts"] == 3
+    _same(fw, fs)
+    pd.testing.assert_frame_equal(propose(fw, s), propose(fs, s))
+
+
 def test_short_movie_is_one_part():
     movie = ArrayMovie(np.zeros((3000, SIDE, SIDE), np.uint16))
     assert len(plan_parts(movie, DetectSettings(), 4)) == 1
@@ -143,3 +156,61 @@ def test_batch_splits_a_long_movie_over_idle_workers(tmp_path, monkeypatch):
     r = reviewer("scan", path, "-o", single, "--force")
     assert r.returncode == 0, r.stderr
     pd.testing.assert_frame_equal(pd.read_csv(rows[0]["candidates_csv"]), pd.read_csv(single))
+
+
+def test_bad_split_arguments_are_one_line(tmp_path):
+    path = tmp_path / "m.npy"
+    np.save(path, _movie(300, None, seed=2))
+    for args in (["--workers", "0"], ["--scheduler", "tcp://127.0.0.1:1"],
+                 ["--workers", "2", "--scheduler", "tcp://127.0.0.1:1"]):
+        r = reviewer("scan", path, *args, timeout=120)
+        assert r.returncode == 2, (args, r.stderr)
+        assert len(r.stderr.strip().splitlines()) == 1 and "Traceback" not in r.stderr
+
+
+def test_scan_on_scheduler_and_worker_processes(tmp_path):
+    """`reviewer scan --scheduler` against `dask scheduler` and two `dask worker` processes."""
+    pytest.importorskip("distributed")
+    import json
+    import os
+    import shutil
+    import time
+
+    dask = shutil.which("dask", path=os.path.dirname(sys.executable)) or shutil.which("dask")
+    if dask is None:
+        pytest.skip("the dask command is not installed")
+    path = tmp_path / "long.npy"
+    np.save(path, _movie(9000, 4154, seed=6))
+    info = tmp_path / "scheduler.json"
+    quiet = {"stdout": subprocess.DEVNULL, "stderr": subprocess.DEVNULL}
+    procs = [subprocess.Popen([dask, "scheduler", "--host", "127.0.0.1", "--port", "0",
+                               "--no-dashboard", "--scheduler-file", str(info)], **quiet)]
+    try:
+        end = time.monotonic() + 60
+        while not (info.exists() and info.stat().st_size) and time.monotonic() < end:
+            time.sleep(0.2)
+        address = json.loads(info.read_text())["address"]
+        procs += [subprocess.Popen([dask, "worker", address, "--nworkers", "1", "--nthreads",
+                                    "1", "--no-dashboard", "--host", "127.0.0.1"], **quiet)
+                  for _ in range(2)]
+        from distributed import Client
+
+        with Client(address, timeout="30s") as c:
+            c.wait_for_workers(2, timeout=60)
+        whole, split = tmp_path / "whole.csv", tmp_path / "split.csv"
+        r = reviewer("scan", path, "-o", whole, "--force")
+        assert r.returncode == 0, r.stderr
+        r = reviewer("scan", path, "-o", split, "--force", "--scheduler", address)
+        assert r.returncode == 0, r.stderr
+        assert "in 2 part(s)" in r.stdout
+        got = pd.read_csv(split)
+        assert ((got["kind"] == "step") & ((got["frame"] - 4154).abs() <= 1)).any()
+        pd.testing.assert_frame_equal(pd.read_csv(whole), got)
+    finally:
+        for p in procs[::-1]:
+            p.terminate()
+        for p in procs:
+            try:
+                p.wait(timeout=20)
+            except subprocess.TimeoutExpired:
+                p.kill()
