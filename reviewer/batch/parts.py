@@ -9,7 +9,9 @@ from __future__ import annotations
 import resource
 import shutil
 import sys
+import threading
 import time
+import uuid
 from collections.abc import Callable
 from pathlib import Path
 
@@ -45,8 +47,27 @@ def model_task(path: str, settings: dict, opening: dict, fingerprint: str) -> di
         movie.close()
 
 
+def _reporter(topic: str | None, index: int) -> Callable[[int], None] | None:
+    """Progress as events on `topic` (the part's frames read so far, at most twice a second):
+    a few bytes through the scheduler to the client's progress bar."""
+    if not topic:
+        return None
+    from distributed import get_worker
+
+    worker, state = get_worker(), {"frames": 0, "at": 0.0}
+
+    def report(frames: int) -> None:
+        state["frames"] += frames
+        now = time.monotonic()
+        if now - state["at"] >= 0.5:
+            state["at"] = now
+            worker.log_event(topic, {"part": index, "frames": state["frames"]})
+
+    return report
+
+
 def part_task(path: str, settings: dict, opening: dict, fingerprint: str, part: dict,
-              model: dict | None, folder: str) -> dict:
+              model: dict | None, folder: str, topic: str | None = None) -> dict:
     from reviewer.detect import DetectSettings
     from reviewer.detect.split import PARTS, Part, scan_part
 
@@ -54,7 +75,7 @@ def part_task(path: str, settings: dict, opening: dict, fingerprint: str, part: 
     movie = _open(path, opening, fingerprint)
     try:
         out = scan_part(movie, DetectSettings.from_dict(settings), p, model,
-                        Path(folder) / PARTS / str(p.index))
+                        Path(folder) / PARTS / str(p.index), progress=_reporter(topic, p.index))
     finally:
         movie.close()
     return out | {"peak_mb": _peak_mb(), "worker": _worker()}
@@ -90,7 +111,8 @@ def split_scan(client, movie, settings, parts: int, folder: Path, opening: dict 
                progress: Callable[[int], None] | None = None) -> tuple[dict, dict]:
     """Scan `movie` (opened here for its header only; `opening` the keywords it was opened with)
     in up to `parts` parts on the client's workers, into the scan folder `folder`; returns
-    (features, meta) as compute_features does, the features memory-mapped from the cache."""
+    (features, meta) as compute_features does, the features memory-mapped from the cache.
+    `progress` gets the number of frames scanned so far."""
     from distributed import as_completed
 
     from reviewer.detect import load_scan
@@ -104,16 +126,28 @@ def split_scan(client, movie, settings, parts: int, folder: Path, opening: dict 
     # on a model future would all be placed on the worker that holds it
     model = client.submit(model_task, *common, pure=False).result() if len(plan) > 1 else None
     workers = list(client.scheduler_info()["workers"]) or [None]
-    futures = [client.submit(part_task, *common, p.to_dict(), model, str(folder), pure=False,
-                             workers=workers[i % len(workers)], allow_other_workers=True)
+    seen = [0] * len(plan)
+    lock = threading.Lock()
+
+    def moved(index: int, frames: int) -> None:
+        with lock:
+            seen[index] = max(seen[index], min(frames, plan[index].stop - plan[index].start))
+            progress(sum(seen))
+
+    topic = None
+    if progress is not None:
+        topic = f"reviewer-scan-progress-{uuid.uuid4().hex}"
+        client.subscribe_topic(topic, lambda event: moved(event[1]["part"], event[1]["frames"]))
+    futures = [client.submit(part_task, *common, p.to_dict(), model, str(folder), topic,
+                             pure=False, workers=workers[i % len(workers)],
+                             allow_other_workers=True)
                for i, p in enumerate(plan)]
     results = []
     try:
         for fut in as_completed(futures):
             results.append(fut.result())
             if progress is not None:
-                p = plan[results[-1]["index"]]
-                progress(p.stop - p.start)
+                moved(results[-1]["index"], 1 << 62)
         meta = client.submit(stitch_task, *common, [p.to_dict() for p in plan], results,
                              str(folder), round(time.perf_counter() - t0, 3), pure=False).result()
     except BaseException:
@@ -122,6 +156,9 @@ def split_scan(client, movie, settings, parts: int, folder: Path, opening: dict 
 
         shutil.rmtree(Path(folder) / PARTS, ignore_errors=True)  # the scan kept stays as it was
         raise
+    finally:
+        if topic is not None:
+            client.unsubscribe_topic(topic)
     cached = load_scan(folder)
     if cached is None:
         raise BadInput(f"{folder}: the stitched scan could not be read back from the cache")

@@ -81,8 +81,8 @@ def _cache_folder(fingerprint: str) -> Path | None:
 
 
 def _split(args, movie, settings, folder, bar):
-    """The scan split across Dask workers (reviewer/batch/parts.py), with the bar moved on as each
-    part finishes; a movie too short to split is one part, on one worker."""
+    """The scan split across Dask workers (reviewer/batch/parts.py), the bar moved on by the parts'
+    progress events; a movie too short to split is one part, on one worker."""
     from reviewer.batch import engine
     from reviewer.batch.parts import split_scan
 
@@ -92,15 +92,9 @@ def _split(args, movie, settings, folder, bar):
     client, cluster = engine.start(engine.EngineChoice(args.workers, args.scheduler))
     try:
         parts = max(1, sum(client.nthreads().values()))
-        done = [0]
-
-        def moved(frames: int) -> None:
-            done[0] += frames
-            bar.update(done[0])
-
         opening = {"fps": args.fps, **{k: getattr(args, k, None)
                                        for k in ("dataset", "axes", "channel", "z", "series")}}
-        return split_scan(client, movie, settings, parts, folder, opening, progress=moved)
+        return split_scan(client, movie, settings, parts, folder, opening, progress=bar.update)
     finally:
         client.close()
         if cluster is not None:
