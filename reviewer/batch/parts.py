@@ -1,8 +1,9 @@
 """One long movie split across Dask workers (reviewer/detect/split.py): a task measures the noise
 model on the first frames, one task per part scans its frames into the movie's cache folder (on the
-shared path), a last task stitches the parts and keeps the whole scan in the cache. Frames and
-features never travel: the client and the scheduler see paths, the plan, the model (a few numbers),
-one small dict per part and the stitched scan's meta."""
+shared path), a last task stitches them into the folder's new features, where compute_features
+would have left them; the caller proposes the candidates once and saves the scan as after a whole
+scan. Frames never travel, nor do features through the scheduler: it sees paths, the plan, the
+model (a few numbers), one small dict per part, progress counts and the stitched scan's meta."""
 
 from __future__ import annotations
 
@@ -14,6 +15,8 @@ import time
 import uuid
 from collections.abc import Callable
 from pathlib import Path
+
+import numpy as np
 
 from reviewer.errors import BadInput
 
@@ -83,17 +86,15 @@ def part_task(path: str, settings: dict, opening: dict, fingerprint: str, part: 
 
 def stitch_task(path: str, settings: dict, opening: dict, fingerprint: str, parts: list[dict],
                 results: list[dict], folder: str, seconds: float) -> dict:
-    """Stitch, propose once on the stitched features and keep the scan in `folder`; returns its
-    meta (the features stay on disk)."""
-    from reviewer.detect import DetectSettings, ScanResult, propose, save_scan
+    """Stitch the parts into the scan folder's NEW_FEATURES (as compute_features(workdir=folder)
+    leaves them, for save_scan to move into place); returns the meta (the features stay on disk)."""
+    from reviewer.detect import DetectSettings
     from reviewer.detect.split import PARTS, Part, stitch
 
-    s = DetectSettings.from_dict(settings)
     movie = _open(path, opening, fingerprint)
     try:
-        features, meta = stitch(movie, s, [Part(**p) for p in parts], results, folder, seconds)
-        save_scan(ScanResult(features=features, candidates=propose(features, s, movie.timing),
-                             settings=s.to_dict(), meta=meta), folder)
+        _, meta = stitch(movie, DetectSettings.from_dict(settings), [Part(**p) for p in parts],
+                         results, folder, seconds)
     finally:
         movie.close()
     shutil.rmtree(Path(folder) / PARTS, ignore_errors=True)
@@ -115,8 +116,8 @@ def split_scan(client, movie, settings, parts: int, folder: Path, opening: dict 
     `progress` gets the number of frames scanned so far."""
     from distributed import as_completed
 
-    from reviewer.detect import load_scan
     from reviewer.detect.split import MIN_PART, plan_parts
+    from reviewer.detect.stream import NEW_FEATURES
 
     t0 = time.perf_counter()
     plan = plan_parts(movie, settings, parts, min_part or MIN_PART)
@@ -159,10 +160,13 @@ def split_scan(client, movie, settings, parts: int, folder: Path, opening: dict 
     finally:
         if topic is not None:
             client.unsubscribe_topic(topic)
-    cached = load_scan(folder)
-    if cached is None:
-        raise BadInput(f"{folder}: the stitched scan could not be read back from the cache")
-    meta = dict(cached.meta) | {"seconds": round(time.perf_counter() - t0, 3),
-                                "workers": sorted({r["worker"] for r in results}),
-                                "peak_mb": max(r["peak_mb"] for r in results)}
-    return cached.features, meta
+    files = sorted((Path(folder) / NEW_FEATURES).glob("*.npy"))
+    features = {p.stem: np.load(p, mmap_mode="r+") for p in files}
+    if "score" not in features:
+        raise BadInput(f"{folder}: the stitched features are not in the cache folder (is it on "
+                       "a path the workers share?)")
+    features = {"score": features.pop("score"), **features}
+    meta |= {"seconds": round(time.perf_counter() - t0, 3),
+             "workers": sorted({r["worker"] for r in results}),
+             "peak_mb": max(r["peak_mb"] for r in results)}
+    return features, meta
