@@ -168,8 +168,10 @@ def test_bad_split_arguments_are_one_line(tmp_path):
         assert len(r.stderr.strip().splitlines()) == 1 and "Traceback" not in r.stderr
 
 
+@pytest.mark.heavy
 def test_scan_on_scheduler_and_worker_processes(tmp_path):
-    """`reviewer scan --scheduler` against `dask scheduler` and two `dask worker` processes."""
+    """`reviewer scan --scheduler` against `dask scheduler` and two `dask worker` processes (heavy:
+    the same split as --workers, on the engine test_batch.py already runs as processes)."""
     pytest.importorskip("distributed")
     import json
     import os
