@@ -146,6 +146,7 @@ def test_batch_splits_a_long_movie_over_idle_workers(tmp_path, monkeypatch):
         engine.run(client, [(str(path), settings, True, None, 2)], job.scan_path,
                    lambda i, r: None, rows)
     assert rows[0]["status"] == "done", rows[0]["error"]
+    assert "scanned in 2 parts" in rows[0]["notices"]
     from reviewer.detect import load_scan
     from reviewer.movie import open_movie
     from reviewer.paths import cache_dir

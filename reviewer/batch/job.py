@@ -101,6 +101,8 @@ def _scan(p: Path, settings_dict: dict, force: bool, fps: float | None, parts: i
         return {"frames": movie.n_frames, "duration_s": movie.duration_s, "fps": movie.fps,
                 **{k: int(counts.get(k, 0)) for k in KINDS}, "candidates": len(candidates),
                 "status": status, "candidates_csv": str(out),
-                "notices": "; ".join(movie.notices)}
+                "notices": "; ".join(movie.notices + [f"scanned in {meta['parts']} parts on "
+                                                      f"{len(meta['workers'])} workers"]
+                                     if meta.get("workers") else movie.notices)}
     finally:
         movie.close()
