@@ -61,7 +61,11 @@ class Probe:
                                      stdout=subprocess.PIPE, bufsize=0)
         self.replies: queue.Queue[list[bytes]] = queue.Queue()
         threading.Thread(target=self._read, daemon=True).start()
-        self.command("display-message -p ready")
+        # attaching answers with an empty block of its own: read up to our marker, so that each
+        # later command gets its own reply (not the one before)
+        self.proc.stdin.write(b"display-message -p ready\n")
+        while not any(line.startswith(b"ready") for line in self.replies.get(timeout=10)):
+            pass
 
     def _read(self) -> None:
         block: list[bytes] | None = None

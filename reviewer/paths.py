@@ -4,12 +4,15 @@
   (default ``~/.cache/reviewer``), one folder per movie fingerprint.
 - Sessions (review decisions): ``<movie>.review/`` beside the movie when it exists or the movie's folder
   is writable, else ``$REVIEWER_DATA_DIR`` or ``$XDG_DATA_HOME/reviewer/sessions/<fingerprint>``.
+  A movie inside the cache (the demo sample) never keeps its session or exports there: both go to
+  the user data folder, since the cache is safe to delete.
 - Settings (key maps, label sets): ``$REVIEWER_CONFIG_DIR`` or ``$XDG_CONFIG_HOME/reviewer``.
 """
 
 from __future__ import annotations
 
 import os
+import shutil
 from pathlib import Path
 
 
@@ -44,20 +47,46 @@ def _writable(folder: Path) -> bool:
     return folder.is_dir() and os.access(folder, os.W_OK | os.X_OK)
 
 
+def in_cache(path: str | os.PathLike) -> bool:
+    """The path lies inside the cache folder (derived data, safe to delete)."""
+    try:
+        Path(path).resolve().relative_to(cache_root().resolve())
+    except ValueError:
+        return False
+    return True
+
+
+def _move_out_of_cache(old: Path, new: Path) -> Path:
+    """A session an earlier version kept beside a cached movie, moved to the data folder once (when
+    no reviewer holds it); where the session now is."""
+    if not old.is_dir() or new.exists() or (old / "lock").exists():  # store/lock.py LOCK
+        return old if old.is_dir() and not new.exists() else new
+    try:
+        new.parent.mkdir(parents=True, exist_ok=True)
+        shutil.move(old, new)
+    except OSError:
+        return old if old.is_dir() and not new.exists() else new
+    return new
+
+
 def session_dir(movie_path: str | os.PathLike, fingerprint: str,
                 override: str | os.PathLike | None = None, create: bool = True) -> Path:
     """The session folder of one movie (made if missing when `create`; readers pass False).
 
     ``<movie>.review/`` beside the movie when it exists (even if it cannot be written: the session
     then opens read-only, never a blank one elsewhere); else the user data folder's session when one
-    exists; else beside the movie when that folder is writable, else the user data folder."""
+    exists; else beside the movie when that folder is writable, else the user data folder. A movie in
+    the cache always gets the user data folder's session."""
     if override is not None:
         path = Path(override).expanduser()
     else:
         movie = Path(movie_path).resolve()
         beside = movie.parent / (movie.name + ".review")
         elsewhere = data_root() / "sessions" / fingerprint
-        if beside.is_dir():
+        if in_cache(movie):
+            path = _move_out_of_cache(beside, elsewhere) if create else (
+                beside if beside.is_dir() and not elsewhere.exists() else elsewhere)
+        elif beside.is_dir():
             path = beside
         elif elsewhere.is_dir() or beside.exists() or not _writable(movie.parent):
             path = elsewhere
@@ -80,7 +109,8 @@ def movie_stem(movie_path: str | os.PathLike) -> str:
 
 def output_beside(movie_path: str | os.PathLike, suffix: str, fallback: str | os.PathLike) -> Path:
     """Default place of a file derived from a movie: ``<stem><suffix>`` beside the movie when that
-    folder is writable, else in `fallback` (the session or cache folder)."""
+    folder is writable and not in the cache, else in `fallback` (the session or cache folder)."""
     movie = Path(movie_path).resolve()
     name = movie_stem(movie) + suffix
-    return movie.parent / name if _writable(movie.parent) else Path(fallback) / name
+    beside = _writable(movie.parent) and not in_cache(movie)
+    return movie.parent / name if beside else Path(fallback) / name

@@ -158,3 +158,26 @@ def test_bad_arguments_are_one_line(archive, tmp_path):
         r = reviewer(*args, timeout=120)
         assert r.returncode == 2, (args, r.stderr)
         assert len(r.stderr.strip().splitlines()) == 1 and "Traceback" not in r.stderr
+
+
+def test_workers_command_line(archive, tmp_path):
+    """`reviewer batch --workers 2` as a user runs it: a local cluster of two worker processes."""
+    summary = tmp_path / "local.csv"
+    r = reviewer("batch", archive, "--recursive", "--workers", "2", "-o", summary)
+    assert r.returncode == 1, r.stderr  # one movie failed
+    assert "5 movies: 4 scanned, 0 already scanned (skipped), 1 failed" in r.stdout
+    table = pd.read_csv(summary)
+    assert sorted(table["status"]) == ["done"] * 4 + ["failed"]
+    failed = table[table["status"] == "failed"].iloc[0]
+    assert failed["movie"].endswith("broken.tif") and "broken.tif" in failed["error"]
+    for row in table[table["status"] == "done"].itertuples():
+        single = tmp_path / (Path(row.movie).name + ".single.csv")
+        s = reviewer("scan", row.movie, "-o", single, "--force")
+        assert s.returncode == 0, s.stderr
+        pd.testing.assert_frame_equal(pd.read_csv(row.candidates_csv), pd.read_csv(single))
+    again = reviewer("batch", archive, "--recursive", "--workers", "2", "-o", summary)
+    assert again.returncode == 1 and "0 scanned, 4 already scanned (skipped), 1 failed" in \
+        again.stdout
+    assert sorted(pd.read_csv(summary)["status"]) == ["failed"] + ["skipped"] * 4
+    forced = reviewer("batch", archive, "--recursive", "--workers", "2", "-o", summary, "--force")
+    assert forced.returncode == 1 and "4 scanned, 0 already scanned" in forced.stdout

@@ -137,3 +137,42 @@ def test_refusals_are_one_line(tmp_path):
         assert r.returncode == 2, (args, r.stderr)
         assert len(r.stderr.strip().splitlines()) == 1 and "Traceback" not in r.stderr
     assert pa.read_bytes() == before
+
+
+def test_reviewer_columns_compare_and_merge(tmp_path, capsys):
+    """Exports with the reviewer, cause and x_nm/y_nm columns (appended last) against each other and
+    against an export made before they existed."""
+    from sklearn.metrics import cohen_kappa_score
+
+    from reviewer.cli import main
+
+    a, b, sa, sb = two_reviews(seed=7)
+    for df, who in ((a, "ana"), (b, "NA")):  # "NA" is a name, not a missing value
+        df["cause"] = None
+        df["reviewer"] = who
+        df["x_nm"], df["y_nm"] = df["x"] * 0.05, df["y"] * 0.05
+    pa, pb = save(a, tmp_path / "ana.csv"), save(b, tmp_path / "na.csv")
+    old = save(a.drop(columns=["cause", "reviewer", "x_nm", "y_nm"]), tmp_path / "old.csv")
+
+    assert main(["compare", str(pa), str(pb), "--json"]) == 0
+    out = json.loads(capsys.readouterr().out)
+    assert out["kappa"] == pytest.approx(cohen_kappa_score(sa, sb), abs=1e-12)
+    assert out["reviewers"] == {"a": ["ana"], "b": ["NA"]}
+    assert main(["compare", str(old), str(pb), "--json"]) == 0
+    assert json.loads(capsys.readouterr().out)["kappa"] == pytest.approx(
+        cohen_kappa_score(sa, sb), abs=1e-12)
+    assert main(["compare", str(pa), str(pb)]) == 0
+    assert "reviewers       A: ana; B: NA" in capsys.readouterr().out
+
+    merged = tmp_path / "merged.csv"
+    assert main(["merge", str(pa), str(pb), "-o", str(merged)]) == 0
+    m = pd.read_csv(merged, dtype=str, keep_default_na=False).set_index("event_id")
+    disputed = m[m["status"] == "disputed"]
+    agreed = m[m["status"] != "disputed"]
+    assert len(disputed) == len(out["disagreements"]) > 0 and len(agreed) > 0
+    assert set(agreed["reviewer"]) == {"ana+NA"} and set(disputed["reviewer"]) == {""}
+    assert all(n.startswith("A (ana): ") and "; B (NA): " in n for n in disputed["note"])
+    assert (agreed["x_nm"].astype(float) == a.set_index("event_id").loc[agreed.index, "x_nm"]).all()
+    info = json.loads(merged.with_suffix(".json").read_text())
+    assert info["reviewers"] == ["ana", "NA"]
+    assert [i["reviewers"] for i in info["inputs"]] == [["ana"], ["NA"]]

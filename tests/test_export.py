@@ -60,7 +60,7 @@ def test_csv_reads_back_with_pandas_and_statuses_filter(session, tmp_path):
     df = pd.read_csv(out, keep_default_na=False, dtype=str)
     assert list(df.columns) == list(COLUMNS)
     assert set(df["status"]) == {"accepted"}
-    assert sorted(df["event_id"]) == ["d000000", "m0001"]
+    assert sorted(df["event_id"]) == ["d000000", "m000001"]
     assert df.loc[df.event_id == "d000000", "note"].item() == NOTE
     out2, _ = export_events(session, tmp_path / "rej.csv", statuses="rejected,candidate")
     df2 = pd.read_csv(out2)
@@ -73,10 +73,10 @@ def test_formula_cells_are_neutralised(session, tmp_path):
     session.set_note("d000002", "@x")
     out, _ = export_events(session, tmp_path / "events.csv")
     df = pd.read_csv(out, keep_default_na=False, dtype=str).set_index("event_id")
-    for text in (df.loc["m0001", "label"], df.loc["d000001", "note"], df.loc["d000003", "note"],
+    for text in (df.loc["m000001", "label"], df.loc["d000001", "note"], df.loc["d000003", "note"],
                  df.loc["d000002", "note"]):
         assert not text.startswith(("=", "+", "-", "@")), text
-    assert df.loc["m0001", "label"] == "'=cmd|' /C calc'!A0"
+    assert df.loc["m000001", "label"] == "'=cmd|' /C calc'!A0"
     assert df.loc["d000001", "note"] == "'+1" and df.loc["d000003", "note"] == "'-1"
     assert df.loc["d000002", "note"] == "'@x"
 

@@ -44,7 +44,7 @@ def test_default_output_beside_the_movie(reviewed, capsys):
     assert str(out) in capsys.readouterr().out
     df = pd.read_csv(out)  # pandas.read_csv as the reference RFC 4180 reader
     assert sorted(df["status"]) == ["accepted", "accepted", "candidate", "rejected"]
-    assert df.loc[df.event_id == "m0001", "time_s"].item() == pytest.approx(0.5)  # 200 / 400
+    assert df.loc[df.event_id == "m000001", "time_s"].item() == pytest.approx(0.5)  # 200 / 400
     assert (reviewed.parent / "platelets.events.json").exists()
 
 
@@ -54,8 +54,8 @@ def test_status_filter_output_and_fps_override(reviewed, tmp_path, capsys):
     rc = main(["export", str(reviewed), "-o", str(out), "--status", "accepted", "--fps", "100"])
     assert rc == 0
     df = pd.read_csv(out)
-    assert sorted(df["event_id"]) == ["d000000", "m0001"]
-    assert df.loc[df.event_id == "m0001", "time_s"].item() == pytest.approx(2.0)  # 200 / 100
+    assert sorted(df["event_id"]) == ["d000000", "m000001"]
+    assert df.loc[df.event_id == "m000001", "time_s"].item() == pytest.approx(2.0)  # 200 / 100
 
 
 @needs_open_movie
@@ -88,7 +88,7 @@ def test_read_only_movie_folder_writes_into_the_session_folder(reviewed, monkeyp
     assert main(["export", str(reviewed), "--fps", "400"]) == 0
     out = folder / "platelets.events.csv"
     assert str(out) in capsys.readouterr().out
-    assert list(pd.read_csv(out)["event_id"]) == ["m0001"]  # the session in the data folder
+    assert list(pd.read_csv(out)["event_id"]) == ["m000001"]  # the session in the data folder
 
 
 @needs_open_movie
@@ -99,7 +99,7 @@ def test_explicit_session_folder(reviewed, tmp_path):
     s.close()
     out = tmp_path / "o.csv"
     assert main(["export", str(reviewed), "--session", str(other), "-o", str(out)]) == 0
-    assert list(pd.read_csv(out)["event_id"]) == ["m0001"]
+    assert list(pd.read_csv(out)["event_id"]) == ["m000001"]
 
 
 def test_default_output_falls_back_to_the_session_folder(tmp_path, monkeypatch):

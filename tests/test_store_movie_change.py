@@ -50,7 +50,7 @@ def test_reseed_keeps_matching_decisions_and_lists_orphans(tmp_path):
         "d000004": (40, "transient", "candidate", None, "detector"),
         "d000005": (73, "step", "candidate", None, "detector"),
         "d000006": (200, "step", "candidate", None, "detector"),
-        "m0001": (300, "manual", "accepted", "layer", "manual"),
+        "m000001": (300, "manual", "accepted", "layer", "manual"),
     }
     s.close()
 

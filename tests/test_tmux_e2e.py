@@ -85,16 +85,23 @@ def _check_against_truth(rows: list[dict], reviewed: list[int], movie) -> None:
     assert len(match_events(truth, reviewed)) == len(reviewed), reviewed
 
 
-def test_review_in_tmux_then_export(tmp_path):
+def _scanned(tmp_path, name: str, frames: int, seed: int):
+    """A scaled-down demo sample written to tmp_path/name and scanned: (movie, env for the app,
+    the whole environment for the commands)."""
     from sample_movies.growth import PRESETS, scaled, write_movie
 
     env = {k: os.environ[k] for k in ("REVIEWER_CACHE_DIR", "REVIEWER_DATA_DIR",
                                       "REVIEWER_CONFIG_DIR")}
     full_env = {**os.environ, **env}
-    movie = tmp_path / "platelets.tif"
-    write_movie(movie, scaled(PRESETS["sample"], 8000, 48, 64), seed=3, fps=400.0)
+    movie = tmp_path / name
+    write_movie(movie, scaled(PRESETS["sample"], frames, 48, 64), seed=seed, fps=400.0)
     subprocess.run([*REVIEWER, "scan", str(movie)], check=True, env=full_env,
                    capture_output=True, timeout=120)
+    return movie, env, full_env
+
+
+def test_review_in_tmux_then_export(tmp_path):
+    movie, env, full_env = _scanned(tmp_path, "platelets.tif", 8000, 3)
 
     sock = f"reviewer-e2e-{uuid.uuid4().hex[:8]}"
     try:
@@ -158,15 +165,7 @@ def _far_frame(frames: list[int], n_frames: int, gap: int = 50) -> int:
 def test_decision_keys_away_from_events_change_nothing_in_tmux(tmp_path):
     """On the demo's sample (scaled down): go to a frame >= 50 frames from any event, press a, r, 2,
     q; the export shows every status unchanged and the screen said why each time."""
-    from sample_movies.growth import PRESETS, scaled, write_movie
-
-    env = {k: os.environ[k] for k in ("REVIEWER_CACHE_DIR", "REVIEWER_DATA_DIR",
-                                      "REVIEWER_CONFIG_DIR")}
-    full_env = {**os.environ, **env}
-    movie = tmp_path / "sample.tif"
-    write_movie(movie, scaled(PRESETS["sample"], 2000, 48, 64), seed=5, fps=400.0)
-    subprocess.run([*REVIEWER, "scan", str(movie)], check=True, env=full_env,
-                   capture_output=True, timeout=120)
+    movie, env, full_env = _scanned(tmp_path, "sample.tif", 2000, 5)
     before = _export(movie, full_env, tmp_path / "before.csv")
     assert before and all(r["status"] == "candidate" for r in before)
     spans = [int(r["frame"]) for r in before] + [int(r["frame_end"]) for r in before
@@ -208,3 +207,48 @@ def test_decision_keys_away_from_events_change_nothing_in_tmux(tmp_path):
     after = _export(movie, full_env, tmp_path / "after.csv")
     assert [(r["event_id"], r["status"], r["label"]) for r in after] == \
         [(r["event_id"], r["status"], r["label"]) for r in before]
+
+
+def test_a_note_typed_in_tmux_is_in_the_export_and_quit_says_where(tmp_path):
+    """At 80x24: jump to the first event, w, type a note, enter, e, q. The note is in the CSV that
+    `e` wrote and in a later `reviewer export`; after the screen closes the terminal shows where the
+    session and that export are; Ctrl-C in a second session quits the same way (no hint)."""
+    movie, env, full_env = _scanned(tmp_path, "noted.tif", 1000, 9)
+    sock = f"reviewer-e2e-{uuid.uuid4().hex[:8]}"
+
+    def quit_and_read(win: str, key: str) -> str:
+        _tmux(sock, "send-keys", "-t", win, key)
+        _wait(lambda: _tmux(sock, "display", "-p", "-t", win, "#{pane_dead}").strip() == "1",
+              "the app to quit", timeout=15)
+        # -J joins the lines the terminal wrapped, so a long path reads as one
+        return _tmux(sock, "capture-pane", "-p", "-J", "-S", "-", "-t", win)
+
+    try:
+        win = _open(sock, "note", movie, env, size=(80, 24))
+        _tmux(sock, "set-option", "-w", "-t", win, "remain-on-exit", "on")
+        _type(sock, win, "n")
+        eid = _status(sock, win).split("│")[2].split()[0]  # the event in view, e.g. d000000
+        _tmux(sock, "send-keys", "-t", win, "w")
+        _wait(lambda: f"Note on {eid}" in _screen(sock, win), "the note editor")
+        _tmux(sock, "send-keys", "-t", win, "-l", "thin edge, left")
+        _tmux(sock, "send-keys", "-t", win, "Enter")
+        _wait(lambda: f"note on {eid}: thin edge, left" in _screen(sock, win), "the note said")
+        _tmux(sock, "send-keys", "-t", win, "e")
+        _wait(lambda: "exported " in _screen(sock, win), "the export said")
+        said = quit_and_read(win, "q")
+        folder = tmp_path / "noted.tif.review"
+        written = tmp_path / "noted.events.csv"
+        assert f"reviewer: decisions saved in {folder}; last export: {written}" in said, said
+
+        again = _open(sock, "again", movie, env, size=(80, 24))
+        _tmux(sock, "set-option", "-w", "-t", again, "remain-on-exit", "on")
+        said = quit_and_read(again, "C-c")
+        assert f"reviewer: decisions saved in {folder}" in said and "Press" not in said, said
+    finally:
+        subprocess.run(["tmux", "-L", sock, "kill-server"], capture_output=True, timeout=10)
+    with open(written, newline="", encoding="utf-8") as f:
+        rows = {r["event_id"]: r for r in csv.DictReader(f)}
+    assert rows[eid]["note"] == "thin edge, left"
+    assert sum(bool(r["note"]) for r in rows.values()) == 1
+    later = {r["event_id"]: r for r in _export(movie, full_env, tmp_path / "later.csv")}
+    assert later[eid]["note"] == "thin edge, left"

@@ -9,7 +9,7 @@ from reviewer.errors import BadInput
 from reviewer.tui import keymap as km
 from reviewer.tui.app import ReviewApp
 from reviewer.tui.labels import load_labels
-from reviewer.tui.screens import help_text, parse_goto
+from reviewer.tui.screens import PAIRS, help_text, pair_keys, parse_goto
 
 # Keys the issue text asks for, by binding id (the acceptance keys typed in tmux among them).
 ISSUE_KEYS = {"next_event": "n", "prev_event": "p", "next_pending": "N", "prev_pending": "P",
@@ -83,8 +83,16 @@ def test_unknown_keymap_name_lists_the_shipped_ones():
 def test_help_text_comes_from_the_data():
     keys = km.load_keymap()
     text = help_text(keys, ["alpha", "beta"]).plain
+    by_id = keys.by_id()
+    seconds = {other: (first, desc) for first, (other, desc) in PAIRS.items()}
     for spec in keys.specs:
-        assert spec.display in text or spec.id.startswith("label_"), spec.id  # labels: "1…9"
+        if spec.id in PAIRS:  # shown on one row with its partner
+            other, desc = PAIRS[spec.id]
+            assert f"{pair_keys(spec.display, by_id[other].display)}  " in text and desc in text
+        elif spec.id in seconds:
+            assert seconds[spec.id][1] in text, spec.id
+        else:
+            assert spec.display in text or spec.id.startswith("label_"), spec.id  # labels: "1…9"
     assert "label and accept: 1 alpha, 2 beta\n" in text  # keys 3-9 give no label here
     assert "1…9" in text
 
@@ -102,16 +110,26 @@ def test_labels_default_and_user_file(tmp_path, monkeypatch):
 
 
 @pytest.mark.parametrize("text, expected", [
-    ("1234", 1234), (" 0 ", 0), ("3.5s", 1400), ("3.5 s", 1400), ("0:01.25", 500), (".5s", 200)])
+    ("1234", 1234), (" 0 ", 0), ("3.5s", 1400), ("3.5 s", 1400), ("0:01.25", 500), (".5s", 200),
+    ("0:00:01.25", 500), ("0:00:05", 2000), ("0:00:12.4", 4960)])
 def test_go_to_parses_frames_and_times_at_400_fps(text, expected):
     # 400 frames/s: frame = seconds x 400 (common practice, no source)
     assert parse_goto(text, 5000, None, 400.0) == expected
 
 
+def test_go_to_takes_hours_minutes_seconds_on_a_long_movie():
+    from reviewer.tui.screens import parse_seconds
+
+    assert parse_seconds("1:02:03.5") == 3723.5  # 1 h 2 min 3.5 s
+    assert parse_seconds("62:03.5") == 3723.5  # minutes may pass 60 without hours
+    assert parse_seconds("1234") is None  # a frame number
+    assert parse_goto("1:02:03.5", 40_000, None, 10.0) == 37_235  # 3723.5 s x 10 frames/s
+
+
 def test_go_to_uses_per_frame_times_and_rejects_bad_input():
     times = np.array([0.0, 0.1, 0.25, 0.5, 1.0])
     assert parse_goto("0.3s", 5, times, None) == 2  # nearest recorded time (0.25 s)
-    for bad in ("", "abc", "12x", "5", "-1", "2s"):
+    for bad in ("", "abc", "12x", "5", "-1", "2s", "0:0:60", "0:60:00", "1:2:3:4"):
         with pytest.raises(ValueError):
             parse_goto(bad, 5, times, None)
     with pytest.raises(ValueError, match="no timing"):

@@ -20,7 +20,8 @@ async def test_help_fits_120x40_in_columns(tmp_path):
         assert help_.max_scroll_y == 0, help_.max_scroll_y  # nothing hidden below
         text = app.screen.text.plain
         for needed in ("tab: the event list takes ↑ ↓", "◆ accepted", "× rejected", "◇ pending",
-                       "±2 frames", "save and quit"):
+                       "±2 frames", "save and quit", "beam step", "x1 is real time",
+                       "write a note", "next disputed event"):
             assert needed in text, needed
         await _press(pilot, "escape")
         assert not isinstance(app.screen, HelpScreen)

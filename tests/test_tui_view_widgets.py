@@ -102,11 +102,17 @@ async def test_frameview_contrast_uses_percentiles():
     async with One(fv).run_test(size=(10, 4)) as pilot:
         fv.show(frame)
         await pilot.pause()
-        # numpy.percentile as reference for the default 0.5 / 99.5 % limits
-        assert fv.limits() == pytest.approx(tuple(np.percentile(frame, [0.5, 99.5])), rel=1e-6)
+        # the percentiles are those of the frame as shown: k x k block means (the last blocks
+        # partial), computed here block by block; numpy.percentile as reference
+        k = fv.grid.k
+        assert k > 1
+        shown = np.array([[frame[y:y + k, x:x + k].mean() for x in range(0, 60, k)]
+                          for y in range(0, 40, k)])
+        assert fv.limits() == pytest.approx(tuple(np.percentile(shown, [0.5, 99.5])), rel=1e-5)
         fv.contrast_narrower()
         assert fv.clip > 0.5
-        assert fv.limits() == pytest.approx(tuple(np.percentile(frame, [fv.clip, 100 - fv.clip])))
+        assert fv.limits() == pytest.approx(tuple(np.percentile(shown, [fv.clip, 100 - fv.clip])),
+                                            rel=1e-5)
 
 
 @sync
@@ -220,10 +226,12 @@ async def test_event_list_with_100k_rows_renders_and_moves():
         el.set_rows(_events(100_000))
         el.focus()
         await pilot.pause()
-        # 60 columns: id, frame, time, kind, status, label (no room for score, place, note)
-        assert el.render_line(0).text.split() == ["id", "frame", "time", "s", "kind", "status",
-                                                  "label"]
-        assert el.render_line(1).text.split()[:4] == ["d000001", "0", "0.0000", "step"]
+        # 58 columns beside the scroll bar: id, frame, kind, status, label, duration (no room for
+        # a note, the place, the time)
+        assert el.scrollable_content_region.width == 58
+        assert el.render_line(0).text.split() == ["id", "frame", "kind", "status", "label", "dur",
+                                                  "fr"]
+        assert el.render_line(1).text.split()[:4] == ["d000001", "0", "step", "candidate"]
         await pilot.press("down", "down", "pagedown")
         assert el.cursor_row == 2 + 10
         await pilot.press("end")
@@ -262,7 +270,9 @@ async def test_event_list_click_chooses_and_update_redraws():
 async def test_event_list_columns_follow_the_width():
     from reviewer.tui.eventlist import choose_columns
 
-    assert choose_columns(29) == ["id", "frame", "status"]  # the narrow list at 80 columns
+    assert choose_columns(35) == ["id", "frame", "status", "label"]  # the narrow list at 80 columns
+    assert choose_columns(29) == ["id", "frame", "status"]  # no room for a label of 6
+    assert choose_columns(60) == ["id", "frame", "kind", "status", "label", "note"]
     wide = choose_columns(100)
     assert wide == ["id", "frame", "time", "kind", "score", "status", "label", "place", "dur",
                     "note"]

@@ -26,15 +26,20 @@ def _worker() -> str:
         return "local"
 
 
-def scan_path(path: str, settings: dict, force: bool = False, fps: float | None = None) -> dict:
-    """Scan the movie at `path` with DetectSettings.from_dict(settings)."""
+SPLIT_MIN_PART = 50_000  # frames: a batch splits a movie only into parts at least this long
+
+
+def scan_path(path: str, settings: dict, force: bool = False, fps: float | None = None,
+              parts: int = 1) -> dict:
+    """Scan the movie at `path` with DetectSettings.from_dict(settings); with parts > 1 a long
+    movie is split into up to that many parts scanned on other workers (batch/parts.py)."""
     from reviewer.errors import BadInput
 
     p = Path(path)
     row = _row(p)
     start = time.monotonic()
     try:
-        row.update(_scan(p, settings, force, fps))
+        row.update(_scan(p, settings, force, fps, parts))
     except BadInput as exc:
         row["error"] = str(exc)
     except MemoryError:
@@ -48,9 +53,26 @@ def scan_path(path: str, settings: dict, force: bool = False, fps: float | None 
     return row
 
 
-def _scan(p: Path, settings_dict: dict, force: bool, fps: float | None) -> dict:
+def _features(movie, settings, folder: Path, fps: float | None, parts: int):
+    """compute_features, or the split scan on the cluster's workers when the movie is long enough
+    for more than one part of SPLIT_MIN_PART frames."""
+    from reviewer.detect import compute_features
+    from reviewer.detect.split import plan_parts
+
+    if parts > 1 and len(plan_parts(movie, settings, parts, SPLIT_MIN_PART)) > 1:
+        from distributed import worker_client
+
+        from reviewer.batch.parts import split_scan
+
+        with worker_client() as client:  # this task steps aside while the parts run
+            return split_scan(client, movie, settings, parts, folder, {"fps": fps},
+                              min_part=SPLIT_MIN_PART)
+    return compute_features(movie, settings, workdir=folder)
+
+
+def _scan(p: Path, settings_dict: dict, force: bool, fps: float | None, parts: int) -> dict:
     from reviewer.commands.scan import candidate_rows
-    from reviewer.detect import DetectSettings, compute_features, load_scan, propose, save_scan
+    from reviewer.detect import DetectSettings, load_scan, propose, save_scan
     from reviewer.detect.cache import reusable
     from reviewer.detect.stream import ScanResult
     from reviewer.movie import open_movie
@@ -68,7 +90,7 @@ def _scan(p: Path, settings_dict: dict, force: bool, fps: float | None) -> dict:
         if reusable(cached, settings, movie.n_frames) and out.exists():
             status, features, meta = "skipped", cached.features, cached.meta
         else:  # features memory-mapped into the cache as they are made, as `reviewer scan` does
-            features, meta = compute_features(movie, settings, workdir=folder)
+            features, meta = _features(movie, settings, folder, fps, parts)
             status = "done"
         candidates = propose(features, settings, movie.timing)
         if status == "done":
@@ -79,6 +101,8 @@ def _scan(p: Path, settings_dict: dict, force: bool, fps: float | None) -> dict:
         return {"frames": movie.n_frames, "duration_s": movie.duration_s, "fps": movie.fps,
                 **{k: int(counts.get(k, 0)) for k in KINDS}, "candidates": len(candidates),
                 "status": status, "candidates_csv": str(out),
-                "notices": "; ".join(movie.notices)}
+                "notices": "; ".join(movie.notices + [f"scanned in {meta['parts']} parts on "
+                                                      f"{len(meta['workers'])} workers"]
+                                     if meta.get("workers") else movie.notices)}
     finally:
         movie.close()

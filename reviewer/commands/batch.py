@@ -90,8 +90,10 @@ def run(args: argparse.Namespace) -> int:
     client, cluster = engine.start(choice)
     rows: list = [None] * len(movies)
     interrupted = False
+    # fewer movies than workers: long movies are split across the idle ones (batch/parts.py)
+    parts = max(1, sum(client.nthreads().values()) // len(movies))
     try:
-        engine.run(client, [(str(m), settings, args.force, args.fps) for m in movies],
+        engine.run(client, [(str(m), settings, args.force, args.fps, parts) for m in movies],
                    scan_path, on_row, rows)
     except KeyboardInterrupt:
         interrupted = True

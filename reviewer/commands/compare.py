@@ -5,6 +5,8 @@ from __future__ import annotations
 import argparse
 import json
 
+from reviewer.errors import printable
+
 
 def register(subparsers) -> None:
     p = subparsers.add_parser(
@@ -25,7 +27,15 @@ def _fmt(v: float | None) -> str:
     return "n/a" if v is None else f"{v:.3f}"
 
 
-def summary(result) -> dict:
+def reviewers(result, ia: dict, ib: dict) -> dict:
+    """Who made each table (sidecar `reviewers`, then the names in its reviewer column)."""
+    from reviewer.store.agreement import reviewers_of
+
+    return {"a": reviewers_of([p.a for p in result.pairs if p.a is not None], ia),
+            "b": reviewers_of([p.b for p in result.pairs if p.b is not None], ib)}
+
+
+def summary(result, who: dict | None = None) -> dict:
     dis = [{"event": p.key, "frame": p.frame,
             "a": None if p.a is None else {"status": p.a["status"], "label": p.a["label"]},
             "b": None if p.b is None else {"status": p.b["status"], "label": p.b["label"]}}
@@ -34,19 +44,21 @@ def summary(result) -> dict:
     return {"counts": result.counts, "kappa": result.kappa,
             "kappa_95": [result.kappa_low, result.kappa_high] if result.kappa is not None else None,
             "labels_same": result.labels_same, "labels_both_accepted": result.labels_both,
-            "label_agreement": share, "disagreements": dis}
+            "label_agreement": share, "disagreements": dis,
+            "reviewers": who or {"a": [], "b": []}}
 
 
 def run(args: argparse.Namespace) -> int:
     from reviewer.store.agreement import read_pair
 
-    result, _, _ = read_pair(args.a, args.b, args.tolerance)
-    out = summary(result)
+    result, ia, ib = read_pair(args.a, args.b, args.tolerance)
+    out = summary(result, reviewers(result, ia, ib))
     if args.json:
         print(json.dumps(out, allow_nan=False))
         return 0
     c = out["counts"]
-    lines = [f"events          {c['events']} ({c['only_in_a']} only in A, {c['only_in_b']} only in B)",
+    names = {k: ", ".join(printable(w) for w in v) or "not named" for k, v in out["reviewers"].items()}
+    lines = [f"reviewers       A: {names['a']}; B: {names['b']}",f"events          {c['events']} ({c['only_in_a']} only in A, {c['only_in_b']} only in B)",
              f"both decided    {c['both_decided']}: accepted by both {c['both_accepted']}, rejected "
              f"by both {c['both_rejected']}, A yes/B no {c['a_accepted_b_rejected']}, A no/B yes "
              f"{c['a_rejected_b_accepted']}",

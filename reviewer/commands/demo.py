@@ -12,7 +12,8 @@ def register(subparsers) -> None:
         "demo", help="open the review UI on the bundled sample movie (built on first use)",
         description="Build the invented sample movie (nickel-oxide platelets on a carbon membrane, "
                     "400 frames/s) into the cache on first use, then review it: the scan runs in "
-                    "the background the first time.")
+                    "the background the first time. Its session and exports are kept in the user "
+                    "data folder, not in the cache.")
     add_review_options(p)
     p.set_defaults(func=run, fps=None)
 

@@ -23,6 +23,7 @@ def register(subparsers) -> None:
 
 def run(args: argparse.Namespace) -> int:
     import reviewer
+    from reviewer.commands.compare import reviewers
     from reviewer.outputs import guard, json_bytes, opened, replacing, table_files
     from reviewer.store.agreement import merged_rows, read_pair
     from reviewer.store.events import utc_now
@@ -35,10 +36,14 @@ def run(args: argparse.Namespace) -> int:
     result, ia, ib = read_pair(args.a, args.b, args.tolerance)
     rows = merged_rows(result)
     disputed = sum(r["status"] == "disputed" for r in rows)
+    who = reviewers(result, ia, ib)
     info = {"program": "reviewer", "version": reviewer.__version__, "merged_at": utc_now(),
             "movie": ia.get("movie") or ib.get("movie"),
-            "inputs": [{"csv": str(Path(args.a).resolve()), "exported_at": ia.get("exported_at")},
-                       {"csv": str(Path(args.b).resolve()), "exported_at": ib.get("exported_at")}],
+            "inputs": [{"csv": str(Path(args.a).resolve()), "exported_at": ia.get("exported_at"),
+                        "reviewers": who["a"]},
+                       {"csv": str(Path(args.b).resolve()), "exported_at": ib.get("exported_at"),
+                        "reviewers": who["b"]}],
+            "reviewers": list(dict.fromkeys(who["a"] + who["b"])),
             "kappa": result.kappa, "counts": {**result.counts, "disputed": disputed},
             "csv": out.name}
     with replacing(side, out) as (tmp_json, tmp_csv):  # the sidecar lands first (see export)

@@ -31,6 +31,13 @@ def register(subparsers) -> None:
                    help="deprecated, prefer --false-alarms: divides the threshold z* set by "
                         "--false-alarms (default 1)")
     p.add_argument("--force", action="store_true", help="scan again even if a cached scan exists")
+    split = p.add_mutually_exclusive_group()
+    split.add_argument("--workers", type=int, default=None, metavar="N",
+                       help="split the movie into parts scanned by N local Dask worker processes "
+                            "(same result as one scan; needs the batch extra)")
+    split.add_argument("--scheduler", metavar="ADDRESS", default=None,
+                       help="split the movie across the workers of a running Dask scheduler, "
+                            "e.g. tcp://node01:8786 (they need the movie and the cache folder)")
     p.set_defaults(func=run)
 
 
@@ -46,9 +53,13 @@ def candidate_rows(candidates) -> list[dict]:
             "frame_end": None if pd.isna(fe) else int(fe),
             "kind": c.kind, "score": float(c.score), "x": _num(c.x), "y": _num(c.y),
             "status": "candidate", "label": "", "note": "", "source": "detector",
-            "reviewed_at": "",
+            "reviewed_at": "", "cause": _cause(getattr(c, "cause", None)),
         })
     return rows
+
+
+def _cause(v) -> str | None:
+    return v if isinstance(v, str) and v else None  # empty for local kinds (NaN when read back)
 
 
 def _num(v) -> float | None:
@@ -73,6 +84,27 @@ def _cache_folder(fingerprint: str) -> Path | None:
         return None
 
 
+def _split(args, movie, settings, folder, bar):
+    """The scan split across Dask workers (reviewer/batch/parts.py), the bar moved on by the parts'
+    progress events; a movie too short to split is one part, on one worker."""
+    from reviewer.batch import engine
+    from reviewer.batch.parts import split_scan
+
+    if folder is None:
+        raise BadInput("--workers/--scheduler: the parts are kept in the cache folder, which "
+                       "cannot be used here (set REVIEWER_CACHE_DIR to a writable, shared folder)")
+    client, cluster = engine.start(engine.EngineChoice(args.workers, args.scheduler))
+    try:
+        parts = max(1, sum(client.nthreads().values()))
+        opening = {"fps": args.fps, **{k: getattr(args, k, None)
+                                       for k in ("dataset", "axes", "channel", "z", "series")}}
+        return split_scan(client, movie, settings, parts, folder, opening, progress=bar.update)
+    finally:
+        client.close()
+        if cluster is not None:
+            cluster.close()
+
+
 def run(args: argparse.Namespace) -> int:
     from reviewer.detect import (
         DetectSettings,
@@ -89,6 +121,8 @@ def run(args: argparse.Namespace) -> int:
     from reviewer.store.table import write_csv
 
     settings = DetectSettings(sensitivity=args.sensitivity, false_alarms=args.false_alarms)
+    if args.workers is not None and args.workers < 1:
+        raise BadInput(f"--workers {args.workers}: 1 or more")
     movie = open_checked(args)
     try:
         cache = _cache_folder(movie.fingerprint)
@@ -104,8 +138,11 @@ def run(args: argparse.Namespace) -> int:
             bar = Progress(movie.n_frames, label="frames")
             cancel = threading.Event()
             try:
-                features, meta = compute_features(movie, settings, progress=bar.update,
-                                                  cancel=cancel, workdir=folder)
+                if args.workers is not None or args.scheduler:
+                    features, meta = _split(args, movie, settings, folder, bar)
+                else:
+                    features, meta = compute_features(movie, settings, progress=bar.update,
+                                                      cancel=cancel, workdir=folder)
             except KeyboardInterrupt:
                 bar.close()
                 print("reviewer: scan interrupted; nothing was written", file=sys.stderr)
@@ -119,7 +156,9 @@ def run(args: argparse.Namespace) -> int:
                                f"({reason(exc)}); nothing was written (free space, or set "
                                "REVIEWER_CACHE_DIR to another folder)") from exc
             bar.close()
-            how = f"scanned {movie.n_frames} frames in {meta.get('seconds', 0):.1f} s"
+            how = f"scanned {movie.n_frames} frames in {meta.get('seconds', 0):.1f} s" + (
+                f" in {meta['parts']} part(s) on {len(meta['workers'])} worker(s)"
+                if meta.get("workers") else "")
         candidates = propose(features, settings, movie.timing)
         result = ScanResult(features=features, candidates=candidates,
                             settings=settings.to_dict(), meta=meta)

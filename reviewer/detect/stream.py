@@ -327,6 +327,20 @@ class _Scanner:
         if end > self.scored:
             self._score(end)
 
+    def noise_model(self) -> dict:
+        """What the parts of a split scan share (split.py): the beam reference and shot-noise gain
+        (fixed by the first frames), and the blank test's recent levels."""
+        return {"ref_total": self.ref_total, "ref0": self.ref0, "gain": self.gain,
+                "recent": self.recent.tolist(), "n_recent": self.n_recent}
+
+    def adopt(self, model: dict, context: int) -> None:
+        """Scan as a later part of a split movie: take `model` (noise_model()) instead of measuring
+        it, and treat the first `context` rows fed as context only (never scored themselves)."""
+        self.ref_total, self.ref0, self.gain = model["ref_total"], model["ref0"], model["gain"]
+        self.recent[:] = model["recent"]
+        self.n_recent = model["n_recent"]
+        self.scored = context
+
     def _score(self, upto: int) -> None:
         self._normalise()
         xn = self.buf[: self.fill]

@@ -173,20 +173,39 @@ def agreement(a: list[dict], b: list[dict], tolerance: int = 2) -> Agreement:
     return Agreement(pairs, table, k, lo, hi, same, both, counts)
 
 
+def _view(side: str, row: dict | None) -> str:
+    if row is None:
+        return f"{side}: absent"
+    who = _text(row.get("reviewer"))
+    return f"{side}{f' ({who})' if who else ''}: {row['status']}/{row['label'] or '-'}"
+
+
 def merged_rows(result: Agreement) -> list[dict]:
-    """One row per event: agreed decisions kept; anything else marked 'disputed' (with both views in
-    its note) for a third look."""
+    """One row per event: agreed decisions kept, `reviewer` naming both reviewers ('ana+ben') and
+    `reviewed_at` the later of the two; anything else marked 'disputed' (both views, with who took
+    them, in its note; no reviewer, no reviewed_at) for a third look."""
     out = []
     for p in result.pairs:
         base = dict(p.a or p.b)
         if not p.agreed:
-            a = "absent" if p.a is None else f"{p.a['status']}/{p.a['label'] or '-'}"
-            b = "absent" if p.b is None else f"{p.b['status']}/{p.b['label'] or '-'}"
             base["status"] = "disputed"
-            base["note"] = f"A: {a}; B: {b}"
+            base["note"] = f"{_view('A', p.a)}; {_view('B', p.b)}"
             base["reviewed_at"] = None
+            base["reviewer"] = None
+        else:
+            who = [w for w in (_text(p.a.get("reviewer")), _text(p.b.get("reviewer"))) if w]
+            base["reviewer"] = "+".join(dict.fromkeys(who)) or None
+            times = [t for t in (_text(p.a.get("reviewed_at")), _text(p.b.get("reviewed_at"))) if t]
+            base["reviewed_at"] = max(times) if times else None
         out.append(base)
     return out
+
+
+def reviewers_of(rows: list[dict], info: dict) -> list[str]:
+    """Who made a table: its sidecar's `reviewers`, then any other name in its reviewer column."""
+    listed = info.get("reviewers")
+    named = [str(r) for r in listed if r] if isinstance(listed, list) else []
+    return list(dict.fromkeys(named + [w for r in rows if (w := _text(r.get("reviewer")))]))
 
 
 def read_review(path: str) -> tuple[list[dict], dict]:
@@ -196,7 +215,10 @@ def read_review(path: str) -> tuple[list[dict], dict]:
     from reviewer.store.export import sidecar_path
 
     try:
-        table = pd.read_csv(path, dtype={"event_id": str, "label": str, "status": str})
+        # only empty cells are missing: a reviewer or label called "NA" or "null" stays text
+        table = pd.read_csv(path, dtype={"event_id": str, "label": str, "status": str,
+                                         "reviewer": str, "cause": str},
+                            keep_default_na=False, na_values=[""])
     except (OSError, ValueError, UnicodeError) as exc:
         raise BadInput(f"{path}: cannot read the event table ({exc})") from None
     side = sidecar_path(path)

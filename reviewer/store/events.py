@@ -14,7 +14,7 @@ from datetime import UTC, datetime
 import numpy as np
 import pandas as pd
 
-from reviewer.store.table import COLUMNS
+from reviewer.store.table import CAUSE_WORDS, EVENT_COLUMNS
 
 
 def utc_now() -> str:
@@ -27,12 +27,17 @@ def detector_id(index: int) -> str:
 
 
 def manual_id(number: int) -> str:
-    return f"m{number:04d}"
+    """m000001, ...: six digits like detector ids (sessions and exports made before also hold m0001)."""
+    return f"m{number:06d}"
 
 
 @dataclass(slots=True)
 class Event:
-    """One event; its attributes are the columns of the event table (store/table.py COLUMNS)."""
+    """One event; its attributes are the columns of the event table (store/table.py EVENT_COLUMNS).
+
+    cause: what a `global` candidate is, from the detector (detect/candidates.py CAUSES: stage,
+    blank, beam, unknown); None for other kinds. reviewer: who made the latest decision (set with
+    reviewed_at)."""
 
     event_id: str
     frame: int
@@ -47,16 +52,23 @@ class Event:
     note: str | None = None
     source: str = "detector"
     reviewed_at: str | None = None
+    cause: str | None = None
+    reviewer: str | None = None
 
     def as_row(self) -> dict:
-        return {c: getattr(self, c) for c in COLUMNS}
+        return {c: getattr(self, c) for c in EVENT_COLUMNS}
+
+    @property
+    def cause_words(self) -> str | None:
+        """The cause as the list and status line say it ('blank', 'beam step', ...); None without one."""
+        return None if self.cause is None else CAUSE_WORDS.get(self.cause, self.cause)
 
     def values(self, names) -> dict:
         return {n: getattr(self, n) for n in names}
 
 
 FIELDS = tuple(f.name for f in fields(Event))
-assert FIELDS == COLUMNS, "Event attributes must match the event table columns"
+assert FIELDS == EVENT_COLUMNS, "Event attributes must match the event table columns"
 
 
 def _opt_float(value) -> float | None:
@@ -150,5 +162,7 @@ def candidate_rows(df, time_of_frames) -> list[list]:
         "note": [None] * n,
         "source": ["detector"] * n,
         "reviewed_at": [None] * n,
+        "cause": _column(df, "cause", n, "text"),
+        "reviewer": [None] * n,
     }
     return [list(r) for r in zip(*(cols[f] for f in FIELDS), strict=True)]

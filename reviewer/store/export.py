@@ -1,4 +1,10 @@
-"""Export a session's events: the CSV event table (RFC 4180) and a JSON provenance sidecar."""
+"""Export a session's events: the CSV event table (RFC 4180) and a JSON provenance sidecar.
+
+The export writes the event columns and, when the pixel size is known, each event's place in
+nanometres (x_nm, y_nm = x, y times the pixel size). The pixel size comes, first found first, from
+`--pixel-size` given to the export, the one given to the review (kept in the session's meta.json),
+or the one stored with the movie; the sidecar says which (`pixel_size_nm`, `pixel_size_source`).
+"""
 
 from __future__ import annotations
 
@@ -9,6 +15,7 @@ from pathlib import Path
 import reviewer
 from reviewer.errors import BadInput
 from reviewer.movie.base import Timing
+from reviewer.movie.units import parse_length
 from reviewer.outputs import guard, json_bytes, movie_files, opened, replacing
 from reviewer.store.events import utc_now
 from reviewer.store.table import STATUSES, write_csv
@@ -28,6 +35,36 @@ def parse_statuses(text: str | Iterable[str]) -> tuple[str, ...]:
         raise BadInput(f"--status: unknown status {', '.join(bad) or '(none)'}; "
                        f"use a comma list of {', '.join(STATUSES)}")
     return out
+
+
+GIVEN = "--pixel-size"
+
+
+def parse_pixel_size(text: str) -> float:
+    """'0.05nm', '0.5A', '50pm', '0.01um' -> nanometres per pixel (BadInput when not a length)."""
+    return parse_length(text, GIVEN) * 1e9
+
+
+def pixel_size(session, movie=None, given_nm: float | None = None) -> tuple[float | None, str | None]:
+    """(nm per pixel, where it came from), or (None, None) when nothing states it."""
+    if given_nm is not None:
+        return float(given_nm), GIVEN
+    kept = session.meta.get("pixel_size_nm")
+    if kept:
+        return float(kept), str(session.meta.get("pixel_size_source") or GIVEN)
+    stored = getattr(movie, "pixel_size_nm", None) if movie is not None else None
+    if stored:
+        return float(stored), f"movie metadata: {movie.layout.split(',')[0]}"
+    return None, None
+
+
+def export_row(event, pixel_nm: float | None) -> dict:
+    """One event's row of the export: its columns, and its place in nm when the pixel size is known."""
+    row = event.as_row()
+    for axis in ("x", "y"):
+        v = row[axis]
+        row[f"{axis}_nm"] = v * pixel_nm if v is not None and pixel_nm is not None else None
+    return row
 
 
 def _movie_facts(session, movie) -> dict:
@@ -56,8 +93,10 @@ def export_inputs(session, movie=None) -> list:
 
 
 def export_events(session, csv_path: str | os.PathLike,
-                  statuses: Iterable[str] = STATUSES, movie=None) -> tuple[Path, Path]:
-    """Write the events with the given statuses to csv_path and the provenance beside it.
+                  statuses: Iterable[str] = STATUSES, movie=None,
+                  pixel_size_nm: float | None = None) -> tuple[Path, Path]:
+    """Write the events with the given statuses to csv_path and the provenance beside it; a
+    session open for writing remembers the path (`Session.last_export`).
 
     Raises BadInput when either file would overwrite an input (the movie, its descriptor or times
     file, a session file) and `reviewer.outputs.WriteFailed` (also an OSError) when writing fails;
@@ -67,7 +106,8 @@ def export_events(session, csv_path: str | os.PathLike,
     json_path = sidecar_path(csv_path)
     guard([csv_path, (json_path, f"sidecar of {csv_path.name}")], export_inputs(session, movie),
           sessions=[session.folder])
-    rows = [e.as_row() for e in session.events if e.status in wanted]
+    pixel_nm, pixel_source = pixel_size(session, movie, pixel_size_nm)
+    rows = [export_row(e, pixel_nm) for e in session.events if e.status in wanted]
     counts = session.counts()
     info = {
         "program": "reviewer",
@@ -77,6 +117,10 @@ def export_events(session, csv_path: str | os.PathLike,
         "detector": session.meta.get("detector"),
         "statuses": list(wanted),
         "counts": {**counts, "exported": len(rows)},
+        "reviewers": list(dict.fromkeys([*getattr(session, "reviewers", []),
+                                         *(r["reviewer"] for r in rows if r["reviewer"])])),
+        "pixel_size_nm": pixel_nm,
+        "pixel_size_source": pixel_source,
         "csv": csv_path.name,
         "session": str(session.folder),
     }
@@ -90,4 +134,7 @@ def export_events(session, csv_path: str | os.PathLike,
             write_csv(rows, f)
         with opened(tmp_json, "wb") as f:
             f.write(data)
+    remember = getattr(session, "remember_export", None)
+    if remember is not None:
+        remember(csv_path)
     return csv_path, json_path

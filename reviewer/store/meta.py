@@ -16,7 +16,21 @@ from reviewer.store.journal import write_json_atomic
 
 META = "meta.json"
 TIMES = "times_s.npy"
-KEYS = ("frames", "fps", "height", "width", "detector")
+
+
+def _line(value) -> list[float]:
+    """x0, y0, x1, y1, width of the review's kymograph line (movie pixels)."""
+    out = [float(v) for v in value]
+    if len(out) != 5:
+        raise ValueError("a kymograph line is x0, y0, x1, y1, width")
+    return out
+
+
+# pixel_size_nm / pixel_size_source: a pixel size the user gave the review (--pixel-size), for exports
+# kymograph_line: the line the review samples for its kymograph pane
+_AS = {"frames": int, "fps": float, "height": int, "width": int, "detector": lambda v: v,
+       "pixel_size_nm": float, "pixel_size_source": str, "kymograph_line": _line}
+KEYS = tuple(_AS)
 
 
 def load_meta(folder: Path) -> tuple[dict, np.ndarray | None, list[str]]:
@@ -50,7 +64,7 @@ def merge_meta(meta: dict, times: np.ndarray | None, new: dict, movie_path, fing
     for key in KEYS:
         if new.get(key) is not None:
             value = new[key]
-            out[key] = float(value) if key == "fps" else int(value) if key != "detector" else value
+            out[key] = _AS[key](value)
     new_times = new.get("times_s")
     times_changed = False
     if new_times is not None:

@@ -20,7 +20,7 @@ from reviewer.store.journal import ReadOnlySession
 
 ORPHANED = "orphaned"
 MATCH_FRAMES = 1  # same frame ±1
-_NEW = ("frame", "time_s", "frame_end", "score", "x", "y")
+_NEW = ("frame", "time_s", "frame_end", "score", "x", "y", "cause")
 
 
 def _decided(ev: Event) -> bool:

@@ -51,7 +51,8 @@ from reviewer.store.lock import LockState, SessionLock
 from reviewer.store.meta import load_meta, merge_meta
 from reviewer.store.replay import load_state, move_aside
 from reviewer.store.reseed import MovieChangeMixin
-from reviewer.store.state import ReviewState
+from reviewer.store.state import ReviewState, describe
+from reviewer.store.who import login_name
 
 COMPACT_BYTES = 4 << 20  # compact automatically once the journal grows by this much
 RECLAIM_OPTION = "--reclaim-lock"  # the review option that takes over a lock left by a dead process
@@ -100,6 +101,7 @@ class Session(MovieChangeMixin, ReviewState):
         self._snap_seq: int | None = None  # seq of snapshot.json as this session knows it
         self._journal_base = 0  # journal size after the last compaction
         self.close_error: OSError | None = None  # set by a signal saver whose close() failed
+        self.reviewer: str | None = login_name()  # written with every journaled action
 
     @property
     def lock_warning(self) -> str | None:
@@ -108,7 +110,8 @@ class Session(MovieChangeMixin, ReviewState):
     # ---- opening -------------------------------------------------------------------------
     @classmethod
     def open(cls, movie_path, fingerprint: str, *, override=None, meta: dict | None = None,
-             readonly: bool = False, reclaim: bool = False) -> Session:
+             readonly: bool = False, reclaim: bool = False,
+             reviewer: str | None = None) -> Session:
         """Open (or start) the session of a movie.
 
         readonly: no lock, no writes, no folder made (for export). Otherwise the session takes the
@@ -121,6 +124,8 @@ class Session(MovieChangeMixin, ReviewState):
         except OSError as exc:
             raise BadInput(f"{override or movie_path}: cannot make the session folder ({exc})") from exc
         s = cls(folder, readonly)
+        if reviewer is not None:
+            s.reviewer = reviewer
         if not readonly:
             s._take_lock(reclaim)
         s.meta, s.times_s, notes = load_meta(folder)
@@ -174,7 +179,7 @@ class Session(MovieChangeMixin, ReviewState):
         got = load_state(self.folder, live_writer_possible=self.readonly)
         self.notices += got.notices
         for name in ("seeded", "_events", "_sorted", "_undo", "_redo", "_seq", "_position",
-                     "_next_manual", "movie_changes"):
+                     "_next_manual", "movie_changes", "_reviewers", "_last_export"):
             setattr(self, name, getattr(got.state, name))
         self._snap_seq = got.snapshot_seq
         floor = self._seq
@@ -213,6 +218,8 @@ class Session(MovieChangeMixin, ReviewState):
             raise ReadOnlySession(f"{self.folder}: the session is open read-only; "
                                   f"{op} was not applied")
         rec = {"seq": self._seq + 1, "t": utc_now(), "op": op, **fields}
+        if self.reviewer:
+            rec["reviewer"] = self.reviewer
         self._busy += 1
         try:
             if self._journal is not None:
@@ -296,9 +303,9 @@ class Session(MovieChangeMixin, ReviewState):
         ev = self.get(event_id)
         ch = changed(ev, **new)
         if ch is not None:
-            if decision:  # reviewed_at records the time of the last decision on the event
-                ch["before"]["reviewed_at"] = ev.reviewed_at
-                ch["after"]["reviewed_at"] = utc_now()
+            if decision:  # reviewed_at and reviewer: when and by whom the last decision was made
+                ch["before"].update(reviewed_at=ev.reviewed_at, reviewer=ev.reviewer)
+                ch["after"].update(reviewed_at=utc_now(), reviewer=self.reviewer)
             self._commit(op, changes=[ch])
         return ev
 
@@ -332,7 +339,7 @@ class Session(MovieChangeMixin, ReviewState):
         event_id = manual_id(self._next_manual)
         ev = Event(**clean(dict(event_id=event_id, frame=int(frame), time_s=self.time_of(int(frame)),
                                 kind="manual", x=x, y=y, status="accepted", label=label,
-                                source="manual", reviewed_at=utc_now())))
+                                source="manual", reviewed_at=utc_now(), reviewer=self.reviewer)))
         self._commit("add", changes=[{"id": event_id, "before": None, "after": ev.as_row()}])
         return self._events[event_id]
 
@@ -343,22 +350,43 @@ class Session(MovieChangeMixin, ReviewState):
         for ev in self.events:
             if ev.kind == kind and ev.status == "candidate":
                 changes.append({"id": ev.event_id,
-                                "before": {"status": ev.status, "reviewed_at": ev.reviewed_at},
-                                "after": {"status": "rejected", "reviewed_at": now}})
+                                "before": {"status": ev.status, "reviewed_at": ev.reviewed_at,
+                                           "reviewer": ev.reviewer},
+                                "after": {"status": "rejected", "reviewed_at": now,
+                                          "reviewer": self.reviewer}})
         if changes:
             self._commit("reject_kind", kind=kind, changes=changes)
         return len(changes)
 
-    def undo(self) -> bool:
+    def undo(self) -> str | None:
+        """Undo the last action; what was undone ('undid accept of d000004'), None if nothing."""
         if not self._undo:
-            return False
-        self._commit("undo", of=self._undo[-1]["seq"])
-        return True
+            return None
+        entry = self._undo[-1]
+        self._commit("undo", of=entry["seq"])
+        return f"undid {describe(entry)}"
 
-    def redo(self) -> bool:
+    def redo(self) -> str | None:
+        """Redo the last undone action; what was redone ('redid accept of d000004'), or None."""
         if not self._redo:
+            return None
+        entry = self._redo[-1]
+        self._commit("redo", of=entry["seq"])
+        return f"redid {describe(entry)}"
+
+    def remember_export(self, csv_path) -> bool:
+        """Journal where an export went (`last_export`); a read-only or closed session, or a journal
+        that cannot be written, only keeps it in memory (the export itself is done). True if saved."""
+        path = str(Path(csv_path).resolve())
+        if self.readonly or self._closed:
+            self._last_export = path
             return False
-        self._commit("redo", of=self._redo[-1]["seq"])
+        try:
+            self._commit("exported", csv=path)
+        except OSError as exc:
+            self._last_export = path
+            self.notices.append(f"{exc}; the export is written, the session does not remember it")
+            return False
         return True
 
     def set_position(self, frame: int) -> None:

@@ -7,12 +7,26 @@ is fsynced) and when replaying the journal on open.
 from __future__ import annotations
 
 from operator import attrgetter
+from pathlib import Path
 
 from reviewer.store.events import FIELDS, Event, clean
 from reviewer.store.table import STATUSES
 
 UNDO_LIMIT = 10_000
 _ROW = attrgetter(*FIELDS)
+_VERBS = {"add": "mark", "reject_kind": "reject"}  # ops named as the user knows them
+
+
+def describe(entry: dict) -> str:
+    """What an undoable action did, in a few words: 'accept of d000004', 'reject of 12 events'."""
+    verb = _VERBS.get(entry["op"], entry["op"])
+    ids = [ch["id"] for ch in entry.get("changes", ())]
+    if len(ids) == 1:
+        after = entry["changes"][0].get("after") or {}
+        if verb == "label" and after.get("label"):
+            return f"label {after['label']!r} of {ids[0]}"
+        return f"{verb} of {ids[0]}"
+    return f"{verb} of {len(ids)} events"
 
 
 class ReviewState:
@@ -26,6 +40,8 @@ class ReviewState:
         self._position = 0
         self._next_manual = 1
         self.movie_changes: list[dict] = []  # movie changes not yet acknowledged by the user
+        self._reviewers: list[str] = []  # everyone who journaled an action, in order of first action
+        self._last_export: str | None = None  # the CSV of the last export from this session
 
     def _load_snapshot(self, snap: dict) -> None:
         self._put_rows(snap.get("columns", list(FIELDS)), snap.get("events", []))
@@ -36,10 +52,17 @@ class ReviewState:
         self._undo = list(snap.get("undo", []))
         self._redo = list(snap.get("redo", []))
         self.movie_changes = [dict(c) for c in snap.get("movie_changes", [])]
+        self._reviewers = [str(r) for r in snap.get("reviewers", [])]
+        self._last_export = snap.get("last_export")
 
     def _apply(self, rec: dict) -> None:
         op = rec["op"]
-        if op == "seed":
+        who = rec.get("reviewer")
+        if who and who not in self._reviewers:
+            self._reviewers.append(str(who))
+        if op == "exported":
+            self._last_export = str(rec["csv"])
+        elif op == "seed":
             self._put_rows(rec["columns"], rec["rows"])
             self.seeded = True
         elif op == "position":
@@ -116,6 +139,16 @@ class ReviewState:
             raise KeyError(f"no event {event_id!r} in this session") from None
 
     @property
+    def reviewers(self) -> list[str]:
+        """Everyone who journaled an action on this session, in order of their first action."""
+        return list(self._reviewers)
+
+    @property
+    def last_export(self) -> Path | None:
+        """The CSV the last export from this session (while it was open for writing) wrote."""
+        return None if self._last_export is None else Path(self._last_export)
+
+    @property
     def position(self) -> int:
         return self._position
 
@@ -130,5 +163,6 @@ class ReviewState:
                 "next_manual": self._next_manual, "seeded": self.seeded, "columns": list(FIELDS),
                 "events": list(map(_ROW, self.events)),
                 "undo": self._undo[-UNDO_LIMIT:], "redo": self._redo,
-                "movie_changes": self.movie_changes}
+                "movie_changes": self.movie_changes, "reviewers": self._reviewers,
+                "last_export": self._last_export}
 

@@ -14,14 +14,21 @@ import os
 from collections.abc import Iterable, Mapping
 from pathlib import Path
 
-COLUMNS: tuple[str, ...] = (
+# The columns an event holds (store/events.py Event); columns added later are appended at the end so
+# readers of older tables keep working: cause (a global event's subtype), reviewer (who decided last).
+EVENT_COLUMNS: tuple[str, ...] = (
     "event_id", "frame", "time_s", "frame_end", "kind", "score", "x", "y",
-    "status", "label", "note", "source", "reviewed_at",
+    "status", "label", "note", "source", "reviewed_at", "cause", "reviewer",
 )
+# Columns an export derives from an event: its place in nanometres when the pixel size is known.
+DERIVED_COLUMNS: tuple[str, ...] = ("x_nm", "y_nm")
+COLUMNS: tuple[str, ...] = EVENT_COLUMNS + DERIVED_COLUMNS
 KINDS = ("step", "transient", "global", "manual")
 STATUSES = ("candidate", "accepted", "rejected", "disputed")  # disputed: reviewers disagreed (merge)
 SOURCES = ("detector", "manual")
-_TEXT = {"kind", "status", "label", "note", "source", "reviewed_at"}
+# a global event's cause (detect/candidates.py CAUSES) in words for the list, status line and README
+CAUSE_WORDS = {"blank": "blank", "beam": "beam step", "stage": "stage jump", "unknown": "unknown"}
+_TEXT = {"kind", "status", "label", "note", "source", "reviewed_at", "cause", "reviewer"}
 _DANGEROUS = ("=", "+", "-", "@", "\t", "\r")
 
 
@@ -38,6 +45,8 @@ def _cell(column: str, value: object) -> str:
             return ""
         if column in ("x", "y", "score"):
             return f"{value:.6g}" if column == "score" else f"{value:.2f}"
+        if column in DERIVED_COLUMNS:
+            return f"{value:.8g}"
         return repr(float(value))  # np.float64 is a float whose repr names numpy
     text = str(value)
     return neutralise(text) if column in _TEXT else text

@@ -4,16 +4,18 @@ from __future__ import annotations
 
 import numpy as np
 
+from reviewer.tui.annotate import AnnotateMixin
 from reviewer.tui.playback import PlaybackMixin
 
 VIEW_MODES = ("frame", "change", "average")
 
 
-class ReviewActions(PlaybackMixin):
+class ReviewActions(PlaybackMixin, AnnotateMixin):
     """Mixin for ReviewApp: navigation, decisions, view and session keys."""
 
     def init_actions(self) -> None:
         self.init_playback()
+        self.last_export = None  # the CSV `e` wrote last (said again on quit)
 
     # ---- moving ---------------------------------------------------------------------------------
     def _start_index(self, forward: bool) -> int:
@@ -26,20 +28,25 @@ class ReviewActions(PlaybackMixin):
         i = int(np.searchsorted(self._ev_frames, self.frame, side=side))
         return i if forward else i - 1
 
-    def _jump(self, forward: bool, pending: bool) -> None:
+    def _jump(self, forward: bool, pending: bool | str, quiet: bool = False) -> bool:
+        """Go to the next / previous event (pending: a pending one; a status: one with that
+        status); False, saying so unless quiet, when there is none."""
+        want = "candidate" if pending is True else (pending or None)
         if not self._ev_ids:
-            self.notify("no events yet" + (" (the scan is running)" if self.scanning else ""))
-            return
+            self.say("no events yet" + (" (the scan is running)" if self.scanning else ""))
+            return False
         i = self._start_index(forward)
         events = self.session.events
         step = 1 if forward else -1
         while 0 <= i < len(events):
-            if not pending or events[i].status == "candidate":
+            if want is None or events[i].status == want:
                 self.go(events[i].frame, jumped_to=events[i].event_id)
-                return
+                return True
             i += step
-        self.notify(f"no {'pending ' if pending else ''}event {'after' if forward else 'before'} "
-                    f"frame {self.frame}")
+        if not quiet:
+            which = {None: "", "candidate": "pending "}.get(want, f"{want} ")
+            self.say(f"no {which}event {'after' if forward else 'before'} frame {self.frame}")
+        return False
 
     def action_next_event(self) -> None:
         self._jump(True, False)
@@ -132,7 +139,7 @@ class ReviewActions(PlaybackMixin):
 
     def action_label(self, k: int) -> None:
         if k > len(self.labels):
-            self.notify(f"no label {k}: the label set has {len(self.labels)}", severity="warning")
+            self.say(f"no label {k}: the label set has {len(self.labels)}", warn=True)
             return
         self._decide(f"label {k}", "set_label", self.labels[k - 1])
 
@@ -166,7 +173,7 @@ class ReviewActions(PlaybackMixin):
             return
         n = sum(1 for e in self.session.events if e.kind == "global" and e.status == "candidate")
         if not n:
-            self.notify("no pending 'global' candidates")
+            self.say("no pending 'global' candidates")
             return
 
         def done(yes: bool | None) -> None:
@@ -174,21 +181,29 @@ class ReviewActions(PlaybackMixin):
                 ok, count = self.write("reject all 'global'", self.session.reject_kind, "global")
                 if not ok:
                     return
-                self.notify(f"rejected {count} 'global' candidates (u undoes)")
+                self.say(f"rejected {count} 'global' candidates (u undoes)")
                 self._after_change(decided=False)
 
         self.push_screen(ConfirmScreen(f"Reject all {n} pending 'global' candidates "
                                        "(blanked frames, beam and stage jumps)?"), done)
 
     def _history(self, redo: bool) -> None:
-        ok, done = self.write("redo" if redo else "undo",
-                              self.session.redo if redo else self.session.undo)
+        """u / U, saying in one line what was undone or redone (the session's description of the
+        action when it gives one)."""
+        verb = "redo" if redo else "undo"
+        pending = getattr(self.session, "_redo" if redo else "_undo", None)
+        if isinstance(pending, list) and not pending:
+            self.say(f"nothing to {verb}")
+            return
+        ok, done = self.write(verb, self.session.redo if redo else self.session.undo)
         if not ok:
             return
-        if done:
-            self._after_change(decided=False)
-        else:
-            self.notify(f"nothing to {'redo' if redo else 'undo'}")
+        if done is False:
+            self.say(f"nothing to {verb}")
+            return
+        self._after_change(decided=False)
+        past = "redid" if redo else "undid"
+        self.say(f"{past} {done}" if isinstance(done, str) and done else f"{past} last action")
 
     def action_undo(self) -> None:
         self._history(False)
@@ -221,7 +236,7 @@ class ReviewActions(PlaybackMixin):
     def action_zoom_event(self) -> None:
         ev = self.current_event()
         if ev is None or ev.x is None or ev.y is None:
-            self.notify("the current event has no place to zoom to")
+            self.say("the current event has no place to zoom to")
             return
         self._view("zoom_to", ev.x, ev.y)
 
@@ -285,10 +300,29 @@ class ReviewActions(PlaybackMixin):
                 out = self.session.folder / out.name
                 csv_path, json_path = export_events(source, out, movie=self.movie)
         except (BadInput, OSError) as exc:
-            self.notify(f"export failed: {exc}", severity="error", timeout=10)
+            self.alert(f"export failed: {exc}")
             return
-        self.notify(f"exported {len(source.events)} events to {csv_path} (+ {json_path.name})",
-                    timeout=8)
+        self.last_export = csv_path
+        self.say(f"exported {len(source.events)} events to {csv_path} (+ {json_path.name})")
+
+    def farewell(self) -> str:
+        """What quitting prints once the screen is gone: where the decisions and the last export
+        are."""
+        folder = self.session.folder
+        if self.session.readonly:
+            text = f"the session in {folder} was read-only: this review changed nothing there"
+        else:
+            text = f"decisions saved in {folder}"
+        last = self.last_export or self.session.last_export
+        if last:
+            return f"reviewer: {text}; last export: {last}"
+        key = self.keymap_key("export")
+        how = f"{key} in the review, or " if key else ""
+        return f"reviewer: {text}; not exported yet ({how}reviewer export MOVIE)"
+
+    async def action_help_quit(self) -> None:
+        """Ctrl-C: our own quit (saves), not Textual's hint."""
+        await self.action_quit()
 
     def export_source(self):
         """What `e` exports: this session; when read-only, the session as its writer has it now

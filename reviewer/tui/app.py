@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import contextlib
 import os
+import sys
 from pathlib import Path
 from typing import ClassVar
 
@@ -23,7 +24,8 @@ from reviewer.tui.actions import ReviewActions
 from reviewer.tui.guard import AlertLine, Banner, GuardMixin
 from reviewer.tui.labels import load_labels
 from reviewer.tui.scanning import ScanMixin
-from reviewer.tui.status import LONG_MOVIE_S, KeyBar, StatusLine
+from reviewer.tui.seeing import SeeingMixin
+from reviewer.tui.status import LONG_MOVIE_S, KeyBar, StatusLine, decimals_for
 
 MIN_SIZE = (80, 24)
 NARROW_BELOW = 110  # columns: below this the event list shrinks to a narrow column
@@ -32,7 +34,7 @@ POSITION_SAVE_S = 2.0  # the position is journaled this long after the cursor st
 VIEW_TOLERANCE = 2  # a decision key acts on an event within this many frames of the viewed one
 
 
-class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
+class ReviewApp(SeeingMixin, GuardMixin, ScanMixin, ReviewActions, App):
     """Review one movie's events. Use make_app() to build one."""
 
     CSS_PATH = "app.tcss"
@@ -41,11 +43,14 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
     TITLE = "reviewer"
     DEFAULT_SPECS = tuple(km.default_specs())
     BINDINGS: ClassVar = km.make_bindings(DEFAULT_SPECS) + [
-        Binding("ctrl+q", "quit", show=False, priority=True)]
+        Binding("ctrl+q", "quit", show=False, priority=True),
+        Binding("ctrl+c", "quit", show=False, priority=True)]  # our quit (saves), not Textual's
 
     def __init__(self, movie, session, *, keymap: km.KeyMap, labels: list[str], scan=None,
-                 advance: bool = False, run_scan: bool = True, play_fps: float = 12.0) -> None:
+                 advance: bool = False, run_scan: bool = True, play_fps: float = 12.0,
+                 graphics: str = "blocks") -> None:
         super().__init__()
+        self.graphics = graphics  # how the frame view draws: half-blocks, or kitty / sixel pixels
         self.movie = movie
         self.session = session
         self.keymap = keymap
@@ -63,9 +68,11 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
         self._position_timer = None
         self._session_closed = False
         self._unreadable: set[int] = set()  # frames already reported as unreadable
+        self.said_on_exit = ""  # printed after the screen closes (where the decisions are)
         self.init_actions()
         self.init_guard()
         self.init_scan(scan, run_scan)
+        self.init_seeing()
 
     # ---- layout ---------------------------------------------------------------------------------
     def compose(self) -> ComposeResult:
@@ -75,8 +82,10 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
 
         yield Banner(id="banner")
         with Horizontal(id="body"):
-            yield FrameView(id="frame")
+            yield FrameView(id="frame", graphics=self.graphics)
+            yield from self.compose_seeing()  # loupe and kymograph column (tui/seeing.py)
             yield EventList(id="events")
+        yield from self.compose_scale()
         yield Timeline(id="timeline")
         yield ProgressBar(id="scanbar", total=self.movie.n_frames, show_eta=True)
         yield AlertLine(id="alert")
@@ -93,6 +102,7 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
         self.status.period_s = 1.0 / fps if fps else None
         last = self.session.time_of(self.movie.n_frames - 1)
         self.status.long_movie = last is not None and last >= LONG_MOVIE_S
+        self.eventlist.time_decimals = decimals_for(self.status.period_s)
         self.fit_layout()
         self.update_banner()
         self.clear_alert()
@@ -116,6 +126,7 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
         width = (size or self.size).width
         with contextlib.suppress(Exception):  # before compose / after unmount: nothing to fit
             self.query_one("#body").set_class(width < NARROW_BELOW, "narrow")
+        self.fit_seeing(size)
 
     def check_size(self, size=None) -> None:
         """Whenever the window is below MIN_SIZE, the too-small screen covers it (and closes
@@ -192,25 +203,20 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
         """Draw the current frame, its mark, the timeline cursor and the status line."""
         from reviewer.errors import BadInput
 
-        try:
-            image = self.movie.frame(self.frame)
+        try:  # reduced to the pane as it is read; damaged neighbours are left out of the windows
+            self.frameview.show_at(self.movie, self.frame, window=CONTEXT_FRAMES)
         except (BadInput, OSError, ValueError) as exc:
             self.frameview.show_unreadable(f"frame {self.frame}: {exc}")
             if self.frame not in self._unreadable:
                 self._unreadable.add(self.frame)
                 self.notify(f"frame {self.frame} cannot be read ({exc}); shown as a placeholder",
                             severity="warning", timeout=8)
-        else:
-            try:
-                before, after = self.context(self.frame)
-            except (BadInput, OSError, ValueError):
-                before = after = None  # the neighbours are damaged: this frame alone
-            self.frameview.show(image, before=before, after=after)
         ev = self.current_event()
         if ev is not None and ev.x is not None and ev.y is not None:
             self.frameview.set_mark(ev.x, ev.y)
         else:
             self.frameview.set_mark(None)
+        self.show_seeing()
         self.timeline.set_position(self.frame)
         if ev is not None:
             self.eventlist.select_event(ev.event_id)
@@ -222,7 +228,7 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
 
     def status_extras(self) -> dict:
         counts = self.session.counts()
-        return {"pending": counts.get("candidate", 0), "mode": self.frameview.status_text,
+        return {"pending": counts.get("candidate", 0), "mode": self.seeing_text() or self.frameview.status_text,
                 "play": self.play_text(), "scan": self.scan_text()}
 
     def go(self, frame: int, *, jumped_to: str | None = None) -> None:
@@ -271,7 +277,18 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
 
     async def action_quit(self) -> None:
         self.close_session()
+        if not self.quit_note:  # else the review command says what was kept
+            self.said_on_exit = self.farewell()
         self.exit(0)
+
+    def run(self, *args, **kwargs):
+        """App.run, then what quitting says, on stderr once the screen is gone (as plain text, so a
+        long path stays in one piece)."""
+        try:
+            return super().run(*args, **kwargs)
+        finally:
+            if self.said_on_exit:
+                print(self.said_on_exit, file=sys.stderr)
 
     def on_signal_exit(self, signum: int) -> None:
         """Called by the store's signal saver (the session is already closed)."""
@@ -285,7 +302,7 @@ class ReviewApp(GuardMixin, ScanMixin, ReviewActions, App):
 def make_app(movie, *, fps: float | None = None, keymap: str | None = None,
              session_dir: str | os.PathLike | None = None, advance: bool = False,
              run_scan: bool = True, play_fps: float | None = None,
-             reclaim: bool = False) -> ReviewApp:
+             reclaim: bool = False, graphics: str = "blocks") -> ReviewApp:
     """Open everything the review needs; BadInput for any bad file (before the screen opens)."""
     from reviewer.store.session import Session
 
@@ -316,4 +333,4 @@ def make_app(movie, *, fps: float | None = None, keymap: str | None = None,
     if play_fps is None:
         play_fps = float(os.environ.get("REVIEWER_PLAY_FPS", "12") or 12)
     return ReviewApp(movie, session, keymap=keys, labels=labels, scan=scan, advance=advance,
-                     run_scan=run_scan, play_fps=play_fps)
+                     run_scan=run_scan, play_fps=play_fps, graphics=graphics)

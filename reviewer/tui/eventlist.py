@@ -1,8 +1,9 @@
 """EventList: a virtualised list of events (Line API) that stays quick at 100,000 rows.
 
-Only the visible rows are ever formatted. Line 0 is a fixed header; line y >= 1 shows row
-``scroll_y + y - 1``. Rows are any objects with the event-table attributes (event_id, frame, time_s,
-kind, score, status, label).
+Only the visible rows are ever formatted. The first line holds the column titles (below the filter's
+line when a filter is set); the lines under it show rows from ``scroll_y`` on. Rows are any objects
+with the event-table attributes (event_id, frame, time_s, kind, score, status, label; x, y,
+frame_end, note and cause when there).
 """
 
 from __future__ import annotations
@@ -19,32 +20,59 @@ from textual.message import Message
 from textual.scroll_view import ScrollView
 from textual.strip import Strip
 
+from reviewer.store.table import CAUSE_WORDS
+
 # name -> (title, width, right-aligned, index in row_cells); width 0: takes the room left
 COLUMNS = {
-    "id": ("id", 9, False, 6), "frame": ("frame", 7, True, 0), "time": ("time s", 10, True, 1),
-    "kind": ("kind", 10, False, 2), "score": ("score", 6, True, 3),
+    "id": ("id", 8, False, 6), "frame": ("frame", 7, True, 0), "time": ("time s", 10, True, 1),
+    "kind": ("kind", 11, False, 2), "score": ("score", 6, True, 3),
     "status": ("status", 10, False, 4), "label": ("label", 12, False, 5),
-    "place": ("x, y", 12, True, 7), "dur": ("dur fr", 7, True, 8), "note": ("note", 0, False, 9),
+    "place": ("x, y", 11, True, 7), "dur": ("dur fr", 7, True, 8), "note": ("note", 0, False, 9),
 }
 SHOWN_ORDER = ("id", "frame", "time", "kind", "score", "status", "label", "place", "dur", "note")
-ALWAYS = ("id", "frame", "status")  # a narrow list shows these
-BY_NEED = ("time", "kind", "label", "note", "place", "dur", "score")  # added while they fit
+ALWAYS = ("id", "frame", "status", "label")  # a narrow list shows these (the label shrinks to fit)
+BY_NEED = ("kind", "note", "place", "dur", "time", "score")  # added while they fit
 NOTE_MIN = 12
+LABEL_MIN = 6
 
 
-def choose_columns(width: int) -> list[str]:
-    """The columns that fit `width`, in SHOWN_ORDER (the note, when shown, takes the rest)."""
-    chosen = list(ALWAYS)
-    used = sum(COLUMNS[c][1] for c in chosen)
+def cause_text(event: object) -> str:
+    """What disturbed the whole field, for a `global` event: blank, beam step, stage jump or
+    unknown; '' for other kinds or when the session does not know."""
+    if str(getattr(event, "kind", "") or "") != "global":
+        return ""
+    cause = str(getattr(event, "cause", "") or "").strip().lower()
+    return CAUSE_WORDS.get(cause, cause)  # store/table.py: one set of words for every screen
+
+
+def column_widths(width: int) -> dict[str, int]:
+    """{column: width} that fit `width`: the ALWAYS ones (the label shrunk, or left out, when even
+    they do not fit), then BY_NEED while they fit; the note, when shown, takes the rest."""
+    widths = {c: COLUMNS[c][1] for c in ALWAYS}
+    over = sum(widths.values()) - width
+    if over > 0:
+        widths["label"] -= over
+        if widths["label"] < LABEL_MIN:
+            del widths["label"]
+    used = sum(widths.values())
     for name in BY_NEED:
         need = COLUMNS[name][1] or NOTE_MIN
         if used + need <= width:
-            chosen.append(name)
+            widths[name] = COLUMNS[name][1]
             used += need
-    return [c for c in SHOWN_ORDER if c in chosen]
+    if "note" in widths:
+        widths["note"] = width - used + NOTE_MIN
+    return widths
+
+
+def choose_columns(width: int) -> list[str]:
+    """The columns that fit `width`, in SHOWN_ORDER."""
+    widths = column_widths(width)
+    return [c for c in SHOWN_ORDER if c in widths]
 
 
 HEADER_STYLE = Style.parse("bold #c8d3de on #1b2430")
+FILTER_STYLE = Style.parse("bold #1b2430 on #f0b43c")
 ROW_STYLE = Style.parse("#c8d3de")
 CURSOR_STYLE = Style.parse("#ffffff on #2f5580")
 STATUS_STYLES = {
@@ -75,15 +103,16 @@ def _duration(event: object) -> str:
     return "" if frame is None or end is None else str(int(end) - int(frame) + 1)
 
 
-def row_cells(event: object) -> list[str]:
+def row_cells(event: object, time_decimals: int = 4) -> list[str]:
     """The displayed text of one event: frame, time, kind, score, status, label, then id, place
-    (x, y), duration in frames, note. A decision whose event a new scan of a changed movie no
-    longer finds shows "·orph" after its kind."""
+    (x, y), duration in frames, note. A global event shows its cause as its kind (blank, beam step,
+    stage jump, unknown). A decision whose event a new scan of a changed movie no longer finds
+    shows "·orph" after its kind."""
     frame = getattr(event, "frame", None)
     return [
         "" if frame is None else str(int(frame)),
-        _num(getattr(event, "time_s", None), ".4f"),
-        str(getattr(event, "kind", "") or "")
+        _num(getattr(event, "time_s", None), f".{time_decimals}f"),
+        (cause_text(event) or str(getattr(event, "kind", "") or ""))
         + ("·orph" if getattr(event, "source", None) == "orphaned" else ""),
         _num(getattr(event, "score", None), ".3g"),
         str(getattr(event, "status", "") or ""),
@@ -96,7 +125,10 @@ def row_cells(event: object) -> list[str]:
 
 
 class EventList(ScrollView, can_focus=True):
-    """Events one per line with a cursor; Enter or a click posts ``EventList.Chosen``."""
+    """Events one per line with a cursor; Enter or a click posts ``EventList.Chosen``.
+
+    A filter (``set_filter``) shows only the rows it passes; its name then heads the list on a line of
+    its own above the column titles."""
 
     DEFAULT_CSS = """
     EventList { overflow-x: hidden; overflow-y: auto; height: 1fr; }
@@ -121,7 +153,11 @@ class EventList(ScrollView, can_focus=True):
     def __init__(self, *, name: str | None = None, id: str | None = None,
                  classes: str | None = None) -> None:
         super().__init__(name=name, id=id, classes=classes)
-        self._rows: list[object] = []
+        self._all: list[object] = []
+        self._rows: list[object] = []  # the rows shown: all, or those the filter passes
+        self._filter = None
+        self.filter_name = ""
+        self.time_decimals = 4
         self._index: dict[int, int] | None = None
         self._cursor = 0
         self._cache: dict[int, list[str]] = {}
@@ -133,18 +169,41 @@ class EventList(ScrollView, can_focus=True):
     # ----- data --------------------------------------------------------------------------------
     def set_rows(self, events: Sequence[object]) -> None:
         """Replace all rows (kept as given; formatted only when shown)."""
-        self._rows = list(events)
+        self._all = list(events)
+        self._apply_filter()
+
+    def set_filter(self, name: str = "", test=None) -> None:
+        """Show only the rows for which test(row) is true, headed by `name`; no test: every row."""
+        self._filter = test
+        self.filter_name = name if test is not None else ""
+        self._cursor = 0
+        self._apply_filter()
+
+    def _apply_filter(self) -> None:
+        test = self._filter
+        self._rows = self._all if test is None else [e for e in self._all if test(e)]
         self._index = None
         self._cache.clear()
         self._cursor = min(self._cursor, max(len(self._rows) - 1, 0))
-        self.virtual_size = Size(self.size.width, len(self._rows) + 1)
+        self.virtual_size = Size(self.size.width, len(self._rows) + self._head)
         self.refresh()
+
+    @property
+    def _head(self) -> int:
+        """Lines above the first row: the column titles, and the filter's line when one is set."""
+        return 2 if self._filter is not None else 1
+
+    @property
+    def total_count(self) -> int:
+        return len(self._all)
 
     def update_event(self, event: object) -> bool:
         """Redraw one changed event in place (same id); False when its id is not listed."""
         row = self._id_index().get(str(event.event_id))  # type: ignore[attr-defined]
         if row is None:
             return False
+        if self._rows is not self._all:
+            self._all = [event if e is self._rows[row] else e for e in self._all]
         self._rows[row] = event
         self._cache.pop(row, None)
         self.refresh()
@@ -177,7 +236,7 @@ class EventList(ScrollView, can_focus=True):
 
     # ----- cursor ------------------------------------------------------------------------------
     def _page_rows(self) -> int:
-        return max(self.size.height - 2, 1)
+        return max(self.size.height - self._head - 1, 1)
 
     def _move_to(self, row: int) -> None:
         if not self._rows:
@@ -205,8 +264,8 @@ class EventList(ScrollView, can_focus=True):
             self.post_message(self.Chosen(self.cursor_event_id))  # type: ignore[arg-type]
 
     def on_click(self, event: events.Click) -> None:
-        if event.y >= 1:
-            row = round(self.scroll_y) + event.y - 1
+        if event.y >= self._head:
+            row = round(self.scroll_y) + event.y - self._head
             if row < len(self._rows):
                 self._move_to(row)
                 self.action_choose()
@@ -216,10 +275,11 @@ class EventList(ScrollView, can_focus=True):
         """(start, width, right-aligned, cell index) of each shown column at this width."""
         if self._cols_for != width:
             out, x = [], 0
-            names = choose_columns(width)
+            widths = column_widths(width)
+            names = [c for c in SHOWN_ORDER if c in widths]
             for name in names:
-                _, w, right, idx = COLUMNS[name]
-                w = w or max(width - x, 0)
+                _, _, right, idx = COLUMNS[name]
+                w = widths[name]
                 out.append((x, w, right, idx))
                 x += w
             self._cols_cache = out
@@ -232,26 +292,29 @@ class EventList(ScrollView, can_focus=True):
         parts = []
         for _, w, right, idx in self._columns_at(width):
             c = cells[idx]
-            c = c[:w - 1] if len(c) >= w else c
+            c = (c[:w - 2] + "…" if w > 2 else c[:w - 1]) if len(c) >= w else c
             parts.append(c.rjust(w - 1) + " " if right else c.ljust(w))
         return "".join(parts)[:width].ljust(width)
 
     def render_line(self, y: int) -> Strip:
         width = self.scrollable_content_region.width
         layout = self._columns_at(width)
-        if y == 0:
+        if y == 0 and self._filter is not None:
+            text = f" {self.filter_name}: {len(self._rows)} of {len(self._all)}"
+            return Strip([Segment(text[:width].ljust(width), FILTER_STYLE)], width)
+        if y == self._head - 1:
             titles = [""] * 10
             for (_, _, _, idx), title in zip(layout, self._titles, strict=True):
                 titles[idx] = title
             return Strip([Segment(self._fit(titles, width), HEADER_STYLE)], width)
-        row = round(self.scroll_y) + y - 1
+        row = round(self.scroll_y) + y - self._head
         if row >= len(self._rows):
             return Strip.blank(width, ROW_STYLE)
         cells = self._cache.get(row)
         if cells is None:
             if len(self._cache) > 2000:
                 self._cache.clear()
-            cells = self._cache[row] = row_cells(self._rows[row])
+            cells = self._cache[row] = row_cells(self._rows[row], self.time_decimals)
         text = self._fit(cells, width)
         if row == self._cursor:
             return Strip([Segment(text, CURSOR_STYLE)], width)
@@ -264,4 +327,4 @@ class EventList(ScrollView, can_focus=True):
         return Strip([s for s in segs if s.text], width)
 
     def on_resize(self) -> None:
-        self.virtual_size = Size(self.size.width, len(self._rows) + 1)
+        self.virtual_size = Size(self.size.width, len(self._rows) + self._head)

@@ -3,6 +3,11 @@
 The whole pane is rendered to strips once per change of frame, mode, contrast, zoom, mark or size;
 ``render_line`` only returns cached strips. Modes: "frame" (the frame), "change" (mean of the frames
 after minus the mean of the frames before, signed colours) and "average" (mean of the window).
+
+Frames are reduced to the pane's resolution as they are read (block means, tui/frames_cache.py), kept
+in an LRU with the window sums, so one step of the cursor reads one new frame per window; the
+percentiles and the noise of the change view are taken on the reduced image, the one that is shown.
+The neighbouring frames are reduced in a worker thread while the user looks.
 """
 
 from __future__ import annotations
@@ -18,9 +23,11 @@ from textual.filter import ANSIToTruecolor, LineFilter
 from textual.strip import Strip
 from textual.widget import Widget
 
-from reviewer.tui import render
+from reviewer.tui import frame_pixels, render
+from reviewer.tui.frames_cache import Grid, ReducedFrames, grid_for, neighbours
 
 MODES = ("frame", "change", "average")
+GRAPHICS = ("blocks", "kitty", "sixel")
 CLIPS = (0.0, 0.05, 0.1, 0.25, 0.5, 1.0, 2.0, 5.0, 10.0, 20.0)  # % clipped at each end
 DEFAULT_CLIP = CLIPS.index(0.5)
 # The change view is scaled in units of its own noise: the contrast steps give the number of noise
@@ -28,34 +35,59 @@ DEFAULT_CLIP = CLIPS.index(0.5)
 CHANGE_SDS = (12.0, 10.0, 8.0, 7.0, 6.0, 5.0, 4.0, 3.0, 2.5, 2.0)
 CHANGE_SMOOTH_PX = 1.0  # Gaussian sigma: shot noise is per pixel, a growth front spans several
 MAX_ZOOM = 64.0
-MARK_RGB = (255, 64, 200)  # pink: stands out on greys, blue and amber
+MARK_RGB = frame_pixels.MARK_RGB  # pink: stands out on greys, blue and amber
 MARK_GLYPHS = ("\u250c", "\u2510", "\u2514", "\u2518")  # corners around the marked spot
 
 
-def _stack(a: np.ndarray | None) -> np.ndarray | None:
+def _stack(a: np.ndarray | None) -> list[np.ndarray]:
     if a is None:
-        return None
+        return []
     a = np.asarray(a)
-    return a[None] if a.ndim == 2 else a
+    return list(a[None] if a.ndim == 2 else a)
 
 
-class FrameView(Widget):
+class _Frames:
+    """A few frames given as arrays, read like a movie (for ``FrameView.show``)."""
+
+    def __init__(self, frames: list[np.ndarray]) -> None:
+        self._frames = frames
+        self.n_frames = len(frames)
+        self.shape = frames[0].shape
+
+    def frame(self, i: int) -> np.ndarray:
+        return self._frames[i]
+
+
+class FrameView(frame_pixels.TruePixels, Widget):
     """Shows one frame (or a change / average of a few) fitted to the pane, aspect kept."""
 
     DEFAULT_CSS = """
     FrameView { width: 1fr; height: 1fr; background: #000000; }
     """
 
-    def __init__(self, *, system: str | None = None, name: str | None = None,
-                 id: str | None = None, classes: str | None = None) -> None:
+    def __init__(self, *, system: str | None = None, prefetch: bool = True,
+                 graphics: str = "blocks", cell_px: tuple[int, int] | None = None,
+                 name: str | None = None, id: str | None = None,
+                 classes: str | None = None) -> None:
         super().__init__(name=name, id=id, classes=classes)
+        if graphics not in GRAPHICS:
+            raise ValueError(f"graphics must be one of {GRAPHICS}, got {graphics!r}")
+        self.graphics = graphics  # "blocks" (half-block cells) or a true-pixel protocol
+        self._cell_px = cell_px  # (width, height) of a cell in pixels; asked of the tty if None
+        self._sequence = ""  # the true-pixel escape sequence of the last build
         self._system_override = system
+        self._prefetch = prefetch  # reduce neighbouring frames in a worker thread
         self._mode = "frame"
-        self._frame: np.ndarray | None = None
-        self._before: np.ndarray | None = None
-        self._after: np.ndarray | None = None
+        self._source = None  # a movie, or _Frames for show()
+        self._frames: ReducedFrames | None = None
+        self._index = 0
+        self._window = 0
+        self._direction = 1
+        self._shape: tuple[int, int] | None = None  # (height, width) of a frame
         self._view: np.ndarray | None = None
+        self._view_key: tuple | None = None
         self._limits: dict[int, tuple[float, float]] = {}
+        self._pinned: dict[int, tuple[float, float]] | None = None  # pin_limits(): fixed contrast
         self._clip = DEFAULT_CLIP
         self._zoom = 1.0
         self._centre: tuple[float, float] | None = None  # (x, y) in frame pixels
@@ -109,32 +141,49 @@ class FrameView(Widget):
         frame = np.asarray(frame)
         if frame.ndim != 2:
             raise ValueError(f"frame must be 2-D, got shape {frame.shape}")
-        if self._frame is None or self._frame.shape != frame.shape:
-            self._zoom, self._centre = 1.0, None
-        self.unreadable = None
-        self._frame, self._before, self._after = frame, _stack(before), _stack(after)
+        b, a = _stack(before), _stack(after)
+        source = _Frames([*b, frame, *a])
+        self._use_source(source, ReducedFrames(source, prefetch=False))
+        self._index, self._window, self._direction = len(b), max(len(b), len(a)), 1
         self._new_view()
+
+    def show_at(self, movie, index: int, *, window: int = 0) -> None:
+        """Show frame ``index`` of a movie (anything with ``frame(i)``, ``n_frames`` and
+        ``shape``); the change and average views use ``window`` frames either side. Frames are
+        read and reduced here (raising what the movie raises when the frame cannot be read) when
+        the pane has a size, else when it is drawn."""
+        if movie is not self._source:
+            self._use_source(movie, ReducedFrames(movie, prefetch=self._prefetch))
+        index = int(index)
+        if index != self._index:
+            self._direction = 1 if index > self._index else -1
+        self._index, self._window = index, int(window)
+        self._new_view()
+        if self.size.width and self.size.height:
+            self._ensure_view(self.size.height, self.size.width)
+
+    def _use_source(self, source, frames: ReducedFrames) -> None:
+        if self._frames is not None:
+            self._frames.close()
+        shape = tuple(int(v) for v in source.shape[:2])
+        if self._shape != shape:
+            self._zoom, self._centre = 1.0, None
+        self._source, self._frames, self._shape = source, frames, shape
+        self.unreadable = None
+
+    def on_unmount(self) -> None:
+        if self._frames is not None:
+            self._frames.close()
+        if self.graphics == "kitty":
+            from reviewer.tui.graphics import kitty_delete
+
+            self._sequence = kitty_delete()
+            self._send_graphics()
 
     def show_unreadable(self, why: str) -> None:
         """Draw a hatched placeholder saying why, instead of a frame that could not be read."""
         self.unreadable = " ".join(str(why).split())
         self._invalidate()
-
-    def _placeholder(self, rows: int, cols: int) -> list[Strip]:
-        hatch = Style(color="grey50", bgcolor="grey15")
-        label = Style(color="white", bgcolor="dark_red", bold=True)
-        text = f" UNREADABLE  {self.unreadable} "[: max(cols - 2, 0)]
-        out = []
-        for y in range(rows):
-            line = "".join("╱" if (x + y) % 4 == 0 else " " for x in range(cols))
-            if y == rows // 2 and text:
-                left = max((cols - len(text)) // 2, 0)
-                segs = [Segment(line[:left], hatch), Segment(text, label),
-                        Segment(line[left + len(text):], hatch)]
-            else:
-                segs = [Segment(line, hatch)]
-            out.append(Strip(segs, cols))
-        return out
 
     def set_mark(self, x: float | None, y: float | None = None) -> None:
         """Mark a spot in frame pixels; ``set_mark(None)`` removes it."""
@@ -162,9 +211,9 @@ class FrameView(Widget):
 
     def pan(self, dx: float, dy: float) -> None:
         """Move the view by (dx, dy) steps, each a quarter of the visible region."""
-        if self._frame is None:
+        if self._shape is None:
             return
-        h, w = self._frame.shape
+        h, w = self._shape
         cx, cy = self._centre or (w / 2, h / 2)
         self._centre = (cx + dx * w / self._zoom / 4, cy + dy * h / self._zoom / 4)
         self._invalidate()
@@ -182,8 +231,8 @@ class FrameView(Widget):
         self._invalidate()
 
     def _new_view(self) -> None:
-        self._view = None
-        self._limits = {}
+        self._view_key = None
+        self.unreadable = None
         self._invalidate()
 
     def _invalidate(self) -> None:
@@ -191,29 +240,89 @@ class FrameView(Widget):
         self.refresh()
 
     # ----- computing the image -----------------------------------------------------------------
-    def view_image(self) -> np.ndarray | None:
-        """The 2-D image of the current mode, before contrast (float32 for change / average)."""
-        if self._view is None and self._frame is not None:
-            f, before, after = self._frame, self._before, self._after
-            if self._mode == "frame":
-                self._view = f
-            elif self._mode == "average":
-                parts = [p for p in (before, f[None], after) if p is not None]
-                self._view = np.concatenate(parts).mean(axis=0, dtype=np.float32)
+    @property
+    def frame_shape(self) -> tuple[int, int] | None:
+        """(height, width) of the frames shown, None before the first."""
+        return self._shape
+
+    @property
+    def grid(self) -> Grid | None:
+        """The region and block size the current view was reduced on."""
+        return None if self._view_key is None else self._view_key[2]
+
+    def _target(self, rows: int, cols: int) -> tuple[int, int, int, int]:
+        y0, y1, x0, x1 = self.view_region()
+        return render.fit(y1 - y0, x1 - x0, max(rows, 1), max(cols, 1))
+
+    def _out_size(self, rows: int, cols: int) -> tuple[int, int]:
+        """Pixels the view is drawn with: half-block pixels, or the pane's true pixels."""
+        if self.graphics == "blocks":
+            return self._target(rows, cols)[:2]
+        return self._pixel_placement(rows, cols)[:2]
+
+    def _ensure_view(self, rows: int, cols: int) -> np.ndarray | None:
+        """The reduced image of the current mode for a pane of rows x cols cells."""
+        if self._frames is None:
+            return None
+        out_h, out_w = self._out_size(rows, cols)
+        grid = grid_for(self.view_region(), out_h, out_w)
+        key = (self._mode, self._index, grid)
+        if key == self._view_key:
+            return self._view
+        frames, i, n = self._frames, self._index, self._window
+        small = frames.get(i, grid)
+        if self._mode == "frame":
+            view = small
+        else:
+            b_sum, nb = frames.window_sum("before", i - n, i, grid)
+            a_sum, na = frames.window_sum("after", i + 1, i + 1 + n, grid)
+            if self._mode == "average":
+                total = small.astype(np.float64)
+                for part in (b_sum, a_sum):
+                    if part is not None:
+                        total = total + part
+                view = (total / (1 + nb + na)).astype(np.float32)
             else:
-                a = f if after is None else after.mean(axis=0, dtype=np.float32)
-                b = f if before is None else before.mean(axis=0, dtype=np.float32)
-                diff = np.asarray(a, dtype=np.float32) - np.asarray(b, dtype=np.float32)
-                self._view = ndimage.gaussian_filter(np.nan_to_num(diff), CHANGE_SMOOTH_PX)
-        return self._view
+                a = small if a_sum is None else a_sum / na
+                b = small if b_sum is None else b_sum / nb
+                diff = np.nan_to_num(np.asarray(a - b, dtype=np.float32))
+                sigma = CHANGE_SMOOTH_PX / grid.k  # one movie pixel, in reduced pixels
+                view = ndimage.gaussian_filter(diff, sigma) if sigma >= 0.3 else diff
+        self._view, self._view_key, self._limits = view, key, {}
+        if not isinstance(self._source, _Frames):
+            now, later = neighbours(i, self._direction, n, self._mode)
+            # after the repaint: the worker must not take the CPU from drawing this frame
+            self.call_after_refresh(frames.prefetch, now, grid, later)
+        return view
+
+    def view_image(self) -> np.ndarray | None:
+        """The 2-D image of the current mode over the visible region, reduced to the pane's
+        resolution (block means; float32), before contrast."""
+        if self._frames is None:
+            return None
+        rows, cols = self.size.height, self.size.width
+        if not (rows and cols):  # not laid out yet: full resolution
+            assert self._shape is not None
+            rows, cols = self._shape[0] // 2 + 1, self._shape[1]
+        return self._ensure_view(rows, cols)
+
+    def pin_limits(self, limits: dict[int, tuple[float, float]] | None) -> None:
+        """Fixed display limits per contrast step (an index into CLIPS) for the frame and average
+        views, kept over later frames until unpinned with None (the blink shows two images with one
+        contrast)."""
+        self._pinned = None if limits is None else dict(limits)
+        self.refresh()
 
     def limits(self) -> tuple[float, float]:
-        """Display limits of the current view: percentiles, or ±scale for the change view."""
+        """Display limits of the current view: percentiles, or ±scale for the change view (both
+        on the reduced image)."""
+        view = self.view_image() if self._view_key is None else self._view
+        if view is None:
+            return 0.0, 1.0
         got = self._limits.get(self._clip)
+        if self._pinned is not None and self._mode != "change":
+            got = self._pinned.get(self._clip, got)
         if got is None:
-            view = self.view_image()
-            if view is None:
-                return 0.0, 1.0
             if self._mode == "change":
                 sample = view[:: max(1, view.shape[0] // 128), :: max(1, view.shape[1] // 128)]
                 sd = 1.4826 * float(np.median(np.abs(sample - np.median(sample))))
@@ -228,8 +337,8 @@ class FrameView(Widget):
 
     def view_region(self) -> tuple[int, int, int, int]:
         """Visible part of the frame as (y0, y1, x0, x1) in frame pixels."""
-        assert self._frame is not None
-        h, w = self._frame.shape
+        assert self._shape is not None
+        h, w = self._shape
         rh = max(1, min(h, int(round(h / self._zoom))))
         rw = max(1, min(w, int(round(w / self._zoom))))
         cx, cy = self._centre or (w / 2, h / 2)
@@ -242,24 +351,25 @@ class FrameView(Widget):
         (out_h, out_w, top, left) in it."""
         palette = "change" if self._mode == "change" else "grey"
         canvas = np.full((2 * rows, cols), render.ZERO_INDEX[palette], dtype=np.uint8)
-        view = self.view_image()
-        if view is None or rows < 1 or cols < 1:
+        if self._frames is None or rows < 1 or cols < 1:
             return canvas, (0, 0, 0, 0)
-        y0, y1, x0, x1 = self.view_region()
-        place = render.fit(y1 - y0, x1 - x0, rows, cols)
+        place = self._target(rows, cols)
         out_h, out_w, top, left = place
-        small = render.resample(view[y0:y1, x0:x1], out_h, out_w)
+        canvas[top:top + out_h, left:left + out_w] = self.indices(rows, cols, out_h, out_w)
+        return canvas, place
+
+    def indices(self, rows: int, cols: int, out_h: int, out_w: int) -> np.ndarray:
+        """The view of a rows x cols pane resized to out_h x out_w pixels, as palette indices
+        (grey, or the signed change palette) after the contrast."""
+        small = render.resample(self._ensure_view(rows, cols), out_h, out_w)
         lo, hi = self.limits()
         if self._mode == "change":
-            idx = render.signed_to_indices(small, hi)
-        else:
-            idx = render.to_indices(small, lo, hi)
-        canvas[top:top + out_h, left:left + out_w] = idx
-        return canvas, place
+            return render.signed_to_indices(small, hi)
+        return render.to_indices(small, lo, hi)
 
     def mark_cell(self, place: tuple[int, int, int, int]) -> tuple[int, int] | None:
         """(row, col) of the cell holding the marked pixel, or None when not visible."""
-        if self._mark is None or self._frame is None:
+        if self._mark is None or self._shape is None:
             return None
         y0, y1, x0, x1 = self.view_region()
         x, y = self._mark
@@ -282,10 +392,29 @@ class FrameView(Widget):
         return [Segment(g, style) for g in MARK_GLYPHS]
 
     def _build(self, rows: int, cols: int) -> list[Strip]:
+        if self.unreadable is None:
+            try:
+                canvas, place = self.canvas(rows, cols)
+            except Exception as exc:  # noqa: BLE001 - any reader failure: say so in the pane
+                self.unreadable = " ".join(f"frame {self._index}: {exc}".split())
+        if self.unreadable is None and self.graphics != "blocks":
+            try:
+                region = self.content_region
+                self._sequence = self.graphics_sequence(rows, cols, region.y, region.x)
+            except Exception as exc:  # noqa: BLE001 - any reader failure: say so in the pane
+                self.unreadable = " ".join(f"frame {self._index}: {exc}".split())
+            else:
+                self.call_after_refresh(self._send_graphics)
+                blank = Style.from_color(bgcolor=Color.from_rgb(0, 0, 0))
+                return [Strip([Segment(" " * cols, blank)], cols) for _ in range(rows)]
         if self.unreadable is not None:
-            return self._placeholder(rows, cols)
+            if self.graphics == "kitty":  # the last picture would stay over the placeholder
+                from reviewer.tui.graphics import kitty_delete
+
+                self._sequence = kitty_delete()
+                self.call_after_refresh(self._send_graphics)
+            return render.placeholder_strips(f" UNREADABLE  {self.unreadable} ", rows, cols)
         system = self.system
-        canvas, place = self.canvas(rows, cols)
         palette = "change" if self._mode == "change" else "grey"
         table = render.segment_table(palette, system)
         cell = self.mark_cell(place)

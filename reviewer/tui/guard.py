@@ -7,6 +7,7 @@ from rich.text import Text
 from textual.widgets import Static
 
 ALERT_S = 12.0  # an alert stays this long (or until the next one)
+BACKGROUND = {"saving the position"}  # writes no key asked for (see write)
 
 
 def one_line(text: str) -> str:
@@ -36,6 +37,7 @@ class GuardMixin:
     def init_guard(self) -> None:
         self._alert_timer = None
         self.alert_text = ""
+        self.alert_kind = ""
         self.quit_note: str | None = None  # printed after the screen closes
 
     def banner_lines(self) -> list[str]:
@@ -56,11 +58,11 @@ class GuardMixin:
 
     def action_acknowledge(self) -> None:
         if not self.session.movie_changes:
-            self.notify("nothing to acknowledge")
+            self.say("nothing to acknowledge")
             return
         if self.write("acknowledge", self.session.acknowledge_movie_change)[0]:
             self.update_banner()
-            self.notify("movie change acknowledged")
+            self.say("movie change acknowledged")
 
     def update_banner(self) -> None:
         banner = self.query_one("#banner", Banner)
@@ -74,6 +76,7 @@ class GuardMixin:
 
     def alert(self, text: str, kind: str = "error") -> None:
         self.alert_text = one_line(text)
+        self.alert_kind = kind
         line = self.query_one("#alert", AlertLine)
         line.update(Text(self.alert_text, no_wrap=True, overflow="ellipsis"))
         line.set_classes(kind)
@@ -105,6 +108,6 @@ class GuardMixin:
             self.alert(f"{what} NOT applied: {_reason(exc)}; free space or fix the folder, then "
                        f"repeat it ({self.session.folder})")
             return False, None
-        if self.alert_text:
-            self.clear_alert()
+        if self.alert_text and (self.alert_kind == "error" or what not in BACKGROUND):
+            self.clear_alert()  # a background write leaves what the last key said
         return True, result

@@ -90,6 +90,16 @@ def change_rgb(index: int) -> tuple[int, int, int]:
     return tuple(int(round(base + (c - base) * m)) for c in end)  # type: ignore[return-value]
 
 
+@lru_cache(maxsize=4)
+def palette_rgb(palette: str) -> np.ndarray:
+    """(256, 3) uint8 RGB of a palette's indices (for drawing true pixels)."""
+    if palette == "grey":
+        return np.repeat(np.arange(256, dtype=np.uint8)[:, None], 3, axis=1)
+    if palette == "change":
+        return np.array([change_rgb(i) for i in range(256)], dtype=np.uint8)
+    raise ValueError(f"unknown palette {palette!r}")
+
+
 def palette_colours(palette: str, system: str) -> list[Color]:
     """The 256 Rich colours of a palette in a colour system ("truecolor" or "256")."""
     if palette == "grey":
@@ -142,6 +152,24 @@ def segment_table(palette: str, system: str) -> tuple[Segment, ...]:
                 seg = seen[key] = Segment(HALF_BLOCK, from_color(fg, bg))
             out.append(seg)
     return tuple(out)
+
+
+def placeholder_strips(text: str, rows: int, cols: int) -> list[Strip]:
+    """A hatched pane with ``text`` on a red label in the middle (what could not be shown)."""
+    hatch = Style(color="grey50", bgcolor="grey15")
+    label = Style(color="white", bgcolor="dark_red", bold=True)
+    text = text[: max(cols - 2, 0)]
+    out = []
+    for y in range(rows):
+        line = "".join("\u2571" if (x + y) % 4 == 0 else " " for x in range(cols))
+        if y == rows // 2 and text:
+            left = max((cols - len(text)) // 2, 0)
+            segs = [Segment(line[:left], hatch), Segment(text, label),
+                    Segment(line[left + len(text):], hatch)]
+        else:
+            segs = [Segment(line, hatch)]
+        out.append(Strip(segs, cols))
+    return out
 
 
 def pair_indices(image: np.ndarray) -> np.ndarray:

@@ -15,21 +15,35 @@ from textual.containers import Horizontal, Vertical, VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Input, Static
 
-_TIME = re.compile(r"^(?:(\d+):)?(\d+(?:\.\d*)?|\.\d+)\s*s?$")
+_TIME = re.compile(r"^(?:(?:(\d+):)?(\d+):)?(\d+(?:\.\d*)?|\.\d+)\s*s?$")
+
+
+def parse_seconds(text: str) -> float | None:
+    """Seconds from "3.5s", "1:02.5" (m:ss) or "1:02:03.5" (h:mm:ss); None when it is not a time
+    (a bare number is a frame, not a time). Minutes and seconds after a colon stay below 60."""
+    t = text.strip().lower()
+    m = _TIME.match(t)
+    if not m or (":" not in t and not t.endswith("s")):
+        return None
+    hours, minutes, secs = m.group(1), m.group(2), float(m.group(3))
+    if minutes is not None and (secs >= 60 or (hours is not None and int(minutes) >= 60)):
+        return None
+    return secs + 60 * int(minutes or 0) + 3600 * int(hours or 0)
 
 
 def parse_goto(text: str, n_frames: int, times_s: np.ndarray | None, fps: float | None) -> int:
-    """A frame from "1234" (frame number), "3.5s" (seconds) or "1:02.5" (minutes:seconds)."""
+    """A frame from "1234" (frame number), "3.5s" (seconds), "1:02.5" (minutes:seconds) or
+    "1:02:03.5" (hours:minutes:seconds)."""
     t = text.strip().lower()
     if not t:
-        raise ValueError("type a frame number (1234) or a time (3.5s)")
+        raise ValueError("type a frame number (1234) or a time (3.5s, 1:02:03.5)")
     if t.isdigit():
         frame = int(t)
     else:
-        m = _TIME.match(t)
-        if not m or (":" not in t and not t.endswith("s")):
-            raise ValueError(f"not a frame or a time: {text.strip()!r} (try 1234 or 3.5s)")
-        seconds = float(m.group(2)) + 60 * int(m.group(1) or 0)
+        seconds = parse_seconds(t)
+        if seconds is None:
+            raise ValueError(f"not a frame or a time: {text.strip()!r} "
+                             "(try 1234, 3.5s or 0:01:02.5)")
         if times_s is not None and len(times_s):
             period = float(np.median(np.diff(times_s))) if len(times_s) > 1 else 0.0
             if seconds > times_s[-1] + period:
@@ -59,11 +73,16 @@ class GoToScreen(ModalScreen[int | None]):
         self.time_of = time_of
 
     def compose(self) -> ComposeResult:
+        from reviewer.tui.status import LONG_MOVIE_S, format_time
+
         last = self.time_of(self.n_frames - 1)
-        span = f" or a time up to {last:.3f}s" if last is not None else ""
+        period = 1.0 / self.fps if self.fps else None
+        span = ""
+        if last is not None:
+            span = f" or a time up to {format_time(last, period, last >= LONG_MOVIE_S)}"
         with Vertical(classes="dialog"):
             yield Static(f"Go to a frame (0..{self.n_frames - 1}){span}:", classes="title")
-            yield Input(placeholder="1234 or 3.5s", id="goto-input")
+            yield Input(placeholder="1234, 3.5s or 0:01:02.5", id="goto-input")
             yield Static("", id="goto-error", classes="error")
 
     def on_input_submitted(self, event: Input.Submitted) -> None:
@@ -123,12 +142,51 @@ def screen_notes(keymap) -> list[tuple[str, str]]:
                       for name, (g, _) in MARKS.items())
     tab = next((s.display for s in keymap.specs if s.id == "focus_list"), "tab")
     return [
-        ("decisions", f"act on the event at this frame (its span or ±{VIEW_TOLERANCE} "
-                      "frames); elsewhere nothing changes"),
-        ("timeline", f"bars: change score, max per column; {glyphs} \u25b2 this frame"),
-        ("focus", f"{tab}: the event list takes ↑ ↓ PgUp PgDn Home End enter; {tab} again "
-                  "gives them back"),
+        ("decisions", f"only on the event in view (its span, ±{VIEW_TOLERANCE} frames)"),
+        ("timeline", f"bars: most change per column; {glyphs} \u25b2 this frame"),
+        ("focus", f"{tab}: the event list takes ↑ ↓ PgUp PgDn Home End enter; {tab}: back"),
+        ("kind", "a global's cause: blank, beam step, stage jump, unknown"),
+        ("play", "x1 is real time; faster skips frames"),
     ]
+
+
+# bindings the help shows on one row, as the README's key table does: first id -> (second id, what
+# the pair does); the keys shown are whatever the key map in use binds
+PAIRS = {
+    "next_event": ("prev_event", "next / previous event (any status)"),
+    "next_pending": ("prev_pending", "next / previous pending candidate"),
+    "frame_forward": ("frame_back", "one frame later / earlier"),
+    "forward_10": ("back_10", "10 frames later / earlier"),
+    "page_forward": ("page_back", "1 % of the movie later / earlier"),
+    "first_frame": ("last_frame", "first / last frame"),
+    "accept": ("reject", "accept / reject the event at this frame"),
+    "nudge_earlier": ("nudge_later", "move the event one frame earlier / later"),
+    "undo": ("redo", "undo (many levels) / redo"),
+    "slower": ("faster", "play slower / faster"),
+    "contrast_stronger": ("contrast_flatter", "contrast stronger / flatter (grey window)"),
+    "zoom_in": ("zoom_out", "zoom in / out"),
+    "pan_left": ("pan_right", "pan left / right"),
+    "pan_up": ("pan_down", "pan up / down"),
+    "timeline_in": ("timeline_out", "timeline: zoom in around this frame / out"),
+    "loupe_blink_fewer": ("loupe_blink_more", "blink over fewer / more frames (N)"),
+}
+
+
+ARROWS = {"right": "→", "left": "←", "up": "↑", "down": "↓"}
+
+
+def pair_keys(a: str, b: str) -> str:
+    """Two bindings' keys on one help row, short: 'n / p', 'shift+→ / ←' (arrows as glyphs, a shared
+    modifier written once)."""
+    def short(k: str) -> str:
+        return " ".join("+".join(ARROWS.get(p, p) for p in key.split("+")) for key in k.split())
+
+    a, b = short(a), short(b)
+    head_a, _, tail_a = a.rpartition("+")
+    head_b, _, tail_b = b.rpartition("+")
+    if head_a and head_a == head_b and " " not in a + b:
+        return f"{a} / {tail_b}"
+    return f"{a} / {b}"
 
 
 def help_entries(keymap, labels: list[str]) -> list[tuple[str, list[tuple[str, str]]]]:
@@ -137,10 +195,17 @@ def help_entries(keymap, labels: list[str]) -> list[tuple[str, list[tuple[str, s
     for group, specs in keymap.groups():
         rows = []
         label_specs = [s for s in specs if "{label}" in s.description]
+        by_id = {s.id: s for s in specs}
+        paired = {PAIRS[i][0] for i in by_id if i in PAIRS and PAIRS[i][0] in by_id}
         for s in specs:
             if s in label_specs:
                 if s is label_specs[0]:
                     rows.append(_label_line(label_specs, labels))
+            elif s.id in paired:
+                continue
+            elif s.id in PAIRS and PAIRS[s.id][0] in by_id:
+                other, desc = PAIRS[s.id]
+                rows.append((pair_keys(s.display, by_id[other].display), desc))
             else:
                 rows.append((s.display, s.description))
         groups.append((group.capitalize(), rows))
@@ -174,21 +239,36 @@ def help_text(keymap, labels: list[str]) -> Text:
     return out
 
 
+WRAP_AT = 40  # description characters per help row in a two-column layout (a safe guess)
+
+
 def split_columns(groups: list, n: int) -> list[list]:
-    """Groups in order into n columns of about equal height (rows + 2 lines a group)."""
-    if n <= 1:
+    """Groups in order into n columns of about equal height (a row's height: 1 plus the lines its
+    description wraps onto; a group's title and the gap after it: 2). A group that does not end in
+    its column goes on at the top of the next under its title with ' (cont.)'."""
+    if n <= 1 or not groups:
         return [groups]
-    heights = [len(rows) + 2 + sum(len(d) // 40 for _, d in rows) for _, rows in groups]
-    target = sum(heights) / n
-    cols: list[list] = [[]]
+    total = sum(2 + sum(1 + len(d) // WRAP_AT for _, d in rows) for _, rows in groups)
+    target = -(-total // n)
+    columns: list[list] = [[]]
     used = 0
-    for group, h in zip(groups, heights, strict=True):
-        if cols[-1] and used + h / 2 > target and len(cols) < n:
-            cols.append([])
+    for title, rows in groups:
+        part: list = []
+        name = title
+        if used + 3 > target and columns[-1] and len(columns) < n:  # title + a row would not fit
+            columns.append([])
             used = 0
-        cols[-1].append(group)
-        used += h
-    return cols
+        used += 2
+        for row in rows:
+            h = 1 + len(row[1]) // WRAP_AT
+            if used + h > target and part and len(columns) < n:
+                columns[-1].append((name, part))
+                columns.append([])
+                part, name, used = [], f"{title} (cont.)", 2
+            part.append(row)
+            used += h
+        columns[-1].append((name, part))
+    return columns
 
 
 class HelpScreen(ModalScreen[None]):

@@ -13,6 +13,8 @@ from rich.text import Text
 from textual.keys import format_key
 from textual.widget import Widget
 
+from reviewer.tui.eventlist import cause_text
+
 _STATUS_STYLE = {"accepted": "bold green", "rejected": "bold red", "candidate": "bold yellow",
                  "disputed": "bold magenta"}
 # field -> priority (lower is kept longer); shown in the order of FIELD_ORDER
@@ -84,11 +86,12 @@ class StatusLine(Widget):
             ev.append(f"no event at frame {frame}", "dim")
         else:
             ev.append(f"{event.event_id} {event.kind} ")
+            cause = extras.get("cause") or cause_text(event)
+            if cause:
+                ev.append(f"({cause}) ")
             ev.append(event.status, _STATUS_STYLE.get(event.status, ""))
             if event.label:
                 ev.append(f" '{event.label}'", "italic")
-            if extras.get("cause"):
-                ev.append(f" ({extras['cause']})")
             if getattr(event, "note", None):
                 ev.append(" ✎", "bold")
             if getattr(event, "source", None) == "orphaned":

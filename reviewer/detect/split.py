@@ -1,0 +1,263 @@
+"""One long movie scanned in parts (on several workers) with the same result as one whole scan.
+
+The whole scan scores frames a chunk at a time; a chunk's scores depend only on the normalised tile
+sums in its buffer (the chunk plus `ctx` frames of context each side), the beam reference and the
+shot-noise gain. So a movie is split where the whole scan ends a chunk that also closes a drift
+window (plan_parts): a part reads from `ctx` frames before its first frame, in blocks on the same
+frame numbers as the whole scan, so every chunk sees the same buffer. The noise model is measured
+once by a light first pass over the frames the whole scan measures it on (estimate_model); each
+later part also reads a few hundred frames before its context to set the blank test's reference
+(warm-up). Parts write their per-frame features into their own folder (scan_part); stitch() puts
+them together -- the drift carried across the joins -- and the whole-movie steps (calibration with
+the median effective number of tests, the level-step features) run once on the stitched features,
+so candidates are proposed once, as for the whole scan.
+
+Equal to the whole scan: per-frame scores bit-identical, and within SCORE_TOLERANCE where a
+blanked frame lies just after a part's first read frame (held from fewer frames before it, and the
+blank test's reference there set by the warm-up); candidates the same.
+"""
+
+from __future__ import annotations
+
+import shutil
+import time
+from dataclasses import asdict, dataclass
+from pathlib import Path
+
+import numpy as np
+
+from reviewer.detect.drift import phase_shift
+from reviewer.detect.readahead import read_ahead
+from reviewer.detect.settings import DetectSettings
+from reviewer.detect.stream import (
+    DRIFT_EVERY,
+    NEW_FEATURES,
+    ScanCancelled,
+    _Scanner,
+    block_frames,
+)
+from reviewer.errors import BadInput
+
+WARM = 256  # frames read before a part's context to set the blank test's recent levels
+MIN_PART = 2 * DRIFT_EVERY  # frames: no part shorter than this
+# |split − whole| bound on every per-frame feature, tested (tests/test_scan_split.py): the scores
+# are bit-identical unless a blanked frame lies within HOLD frames after a part's first read frame
+# (its held value then averages fewer frames: measured 2e-4 in z); the drift differs by float
+# rounding (~5e-7 px)
+SCORE_TOLERANCE = 1e-3
+PARTS = "parts.new"  # subfolder of a scan folder holding the parts' features while they run
+
+
+@dataclass(frozen=True)
+class Part:
+    index: int
+    start: int      # first frame scored
+    stop: int       # one past the last frame scored
+    read_from: int  # first frame read (start − ctx; 0 for the first part)
+    read_to: int    # one past the last frame read (stop + ctx; the movie's end for the last part)
+    closes_at: int  # first frame of the chunk that closes the part's first drift window
+    last: bool
+
+    def to_dict(self) -> dict:
+        return asdict(self)
+
+
+class _Frames:
+    """Frames read_from..read_to-1 of a movie, numbered from 0, in blocks that end on the same frame
+    numbers as the whole scan's (multiples of the block size)."""
+
+    def __init__(self, movie, start: int, stop: int) -> None:
+        self.movie, self.start, self.stop = movie, start, stop
+
+    def iter_blocks(self, size: int, reuse: bool = False):
+        first = self.start // size * size
+        for s, block in self.movie.iter_blocks(size, first, self.stop, reuse=reuse):
+            if s < self.start:
+                block, s = block[self.start - s:], self.start
+            yield s - self.start, block
+
+
+def _scanner(movie, s: DetectSettings, n: int, workdir: Path | None = None) -> _Scanner:
+    return _Scanner(n, tuple(movie.shape), s, str(movie.path), block_frames(movie, s), workdir)
+
+
+def chunk_plan(movie, s: DetectSettings) -> list[tuple[int, int, bool]]:
+    """The whole scan's chunks: (first frame, end frame, closes a drift window), as _Scanner.feed
+    and _score make them for blocks of block_frames() frames."""
+    n, per = movie.n_frames, block_frames(movie, s)
+    probe = _scanner(movie, s, 1)
+    chunk, ctx = probe.chunk, probe.ctx
+    out, scored, rows = [], 0, 0
+    for end in [min(a + per, n) for a in range(0, n, per)]:
+        if end - scored >= chunk + ctx:
+            upto = end - ctx
+            rows += upto - scored
+            closes = rows >= DRIFT_EVERY or upto >= n
+            rows = 0 if closes else rows
+            out.append((scored, upto, closes))
+            scored = upto
+    if n > scored:
+        out.append((scored, n, True))
+    return out
+
+
+def plan_parts(movie, s: DetectSettings, parts: int, min_part: int = MIN_PART) -> list[Part]:
+    """At most `parts` parts of about equal length, split where the whole scan closes a drift
+    window; one part when the movie is too short to split."""
+    plan = chunk_plan(movie, s)
+    n = movie.n_frames
+    ctx = _scanner(movie, s, 1).ctx
+    joins = [upto for _, upto, closes in plan[:-1] if closes and upto + ctx <= n]
+    cuts: list[int] = []
+    for k in range(1, max(parts, 1)):
+        ok = [j for j in joins if j - (cuts[-1] if cuts else 0) >= min_part and n - j >= min_part]
+        if ok:
+            cut = min(ok, key=lambda j: abs(j - k * n / parts))
+            if not cuts or cut > cuts[-1]:
+                cuts.append(cut)
+    bounds = [0, *cuts, n]
+    out = []
+    for i, (a, b) in enumerate(zip(bounds[:-1], bounds[1:], strict=True)):
+        closes = next(c0 for c0, c1, closes in plan if closes and c1 > a)
+        last = b == n
+        out.append(Part(i, a, b, max(0, a - ctx) if i else 0, n if last else b + ctx, closes,
+                        last))
+    return out
+
+
+def _run(sc: _Scanner, frames: _Frames, per: int, cancel=None, progress=None) -> np.ndarray | None:
+    """Feed every block of `frames` to sc (progress gets the number of frames just read); returns
+    the first drift window's mean image."""
+    first = None
+    blocks = read_ahead(frames, per, sc.reduce)
+    try:
+        for start, tiles in blocks:
+            if cancel is not None and cancel.is_set():
+                raise ScanCancelled("scan cancelled")
+            sc.feed(start, tiles)
+            if first is None and sc.prev_mean is not None:
+                first = sc.prev_mean.copy()
+            if progress is not None:
+                progress(len(tiles))
+    finally:
+        blocks.close()
+    return first
+
+
+def estimate_model(movie, s: DetectSettings) -> dict:
+    """The light first pass: the noise model measured on the frames the whole scan measures it on
+    (those read before its first chunk is scored)."""
+    plan = chunk_plan(movie, s)
+    sc = _scanner(movie, s, 1)
+    end = min(movie.n_frames, plan[0][1] + sc.ctx) if plan else movie.n_frames
+    sc = _scanner(movie, s, end)
+    _run(sc, _Frames(movie, 0, end), block_frames(movie, s))
+    if not sc.scored:  # too short for a chunk before the end: measured when the end is scored
+        sc.finish()
+    return sc.noise_model()
+
+
+def _warm(movie, s: DetectSettings, part: Part, model: dict) -> dict:
+    """The model with the blank test's recent levels as they are before the part's first frame."""
+    a = max(0, part.read_from - WARM)
+    if a == part.read_from:
+        return model
+    sc = _scanner(movie, s, part.read_from - a)
+    sc.adopt(model, part.read_from - a)  # context only: nothing is scored
+    sc.chunk = 1 << 40
+    _run(sc, _Frames(movie, a, part.read_from), block_frames(movie, s))
+    sc._normalise()
+    return {**model, **{k: v for k, v in sc.noise_model().items() if k in ("recent", "n_recent")}}
+
+
+def scan_part(movie, s: DetectSettings, part: Part, model: dict | None, workdir,
+              cancel=None, progress=None) -> dict:
+    """Scan one part into `workdir` (per-frame .npy files over frames read_from..read_to-1);
+    returns a small dict for stitch()."""
+    t0 = time.perf_counter()
+    work = Path(workdir)
+    shutil.rmtree(work, ignore_errors=True)
+    work.mkdir(parents=True)
+    per = block_frames(movie, s)
+    sc = _scanner(movie, s, part.read_to - part.read_from, work)
+    if part.index:
+        if model is None:
+            raise ValueError("a later part needs the noise model (estimate_model)")
+        sc.adopt(_warm(movie, s, part, model), part.start - part.read_from)
+    first = _run(sc, _Frames(movie, part.read_from, part.read_to), per, cancel, progress)
+    if part.last:
+        sc.finish()
+        first = sc.prev_mean.copy() if first is None and sc.prev_mean is not None else first
+    if sc.scored != part.stop - part.read_from:
+        raise BadInput(f"{movie.path}: part {part.index} scored frames up to "
+                       f"{part.read_from + sc.scored}, not {part.stop} (the movie changed?)")
+    for a in sc.f.values():
+        if isinstance(a, np.memmap):
+            a.flush()
+    np.save(work / "first_mean.npy", first if first is not None else np.zeros((sc.gy, sc.gx)))
+    np.save(work / "last_mean.npy", sc.prev_mean if sc.prev_mean is not None else
+            np.zeros((sc.gy, sc.gx)))
+    return {"index": part.index, "k_medians": [float(k) for k in sc.k_medians],
+            "nonfinite": int(sc.nonfinite), "nonfinite_frames": int(sc.nonfinite_frames),
+            "ref0": float(sc.ref0), "seconds": round(time.perf_counter() - t0, 3),
+            "folder": str(work)}
+
+
+def stitch(movie, s: DetectSettings, parts: list[Part], results: list[dict], folder,
+           seconds: float | None = None) -> tuple[dict[str, np.ndarray], dict]:
+    """The whole movie's (features, meta) from its parts' results (scan_part), as compute_features
+    returns them; with `folder` (a scan folder) the features are written into its NEW_FEATURES
+    subfolder as compute_features does."""
+    work = None
+    if folder is not None:
+        work = Path(folder) / NEW_FEATURES
+        shutil.rmtree(work, ignore_errors=True)
+        work.mkdir(parents=True)
+    sc = _scanner(movie, s, movie.n_frames, work)
+    results = sorted(results, key=lambda r: r["index"])
+    drift = np.zeros(2)
+    prev_last = None
+    for part, res in zip(parts, results, strict=True):
+        src = Path(res["folder"])
+        a, b, off = part.start, part.stop, part.start - part.read_from
+        for name, dst in sc.f.items():
+            got = np.load(src / f"{name}.npy", mmap_mode="r")
+            for i in range(a, b, 1 << 20):  # in pieces: memory stays bounded
+                j = min(b, i + (1 << 20))
+                dst[i:j] = got[i - a + off: j - a + off]
+        first = np.load(src / "first_mean.npy")
+        if prev_last is not None:  # the drift carried across the join, as the whole scan does
+            dy, dx, _ = phase_shift(prev_last, first, upsample=20)
+            for k, name in enumerate(("drift_y", "drift_x")):
+                col = sc.f[name]
+                col[a: part.closes_at] = drift[k]
+                col[part.closes_at: b] += drift[k] + (dy, dx)[k] * sc.tile
+        drift = np.array([sc.f["drift_y"][b - 1], sc.f["drift_x"][b - 1]], np.float64)
+        prev_last = np.load(src / "last_mean.npy")
+        sc.k_medians += res["k_medians"]
+        sc.nonfinite += res["nonfinite"]
+        sc.nonfinite_frames += res["nonfinite_frames"]
+    sc.ref0 = results[0]["ref0"]  # the first part measured it as the whole scan does
+    features, meta = sc.features()
+    meta.update(shape=list(movie.shape), seconds=seconds if seconds is not None else 0.0,
+                fingerprint=getattr(movie, "fingerprint", ""), parts=len(parts))
+    return features, meta
+
+
+def scan_in_parts(movie, s: DetectSettings, parts: int, folder=None,
+                  min_part: int = MIN_PART) -> tuple[dict, dict]:
+    """The split scan run in this process, part after part (the reference for the engine in
+    reviewer/batch/parts.py, which runs the same steps on workers)."""
+    t0 = time.perf_counter()
+    plan = plan_parts(movie, s, parts, min_part)
+    model = estimate_model(movie, s) if len(plan) > 1 else None
+    base = Path(folder) if folder is not None else None
+    import tempfile
+
+    with tempfile.TemporaryDirectory() as tmp:
+        root = (base / PARTS) if base is not None else Path(tmp)
+        results = [scan_part(movie, s, p, model, root / str(p.index)) for p in plan]
+        out = stitch(movie, s, plan, results, folder)
+        shutil.rmtree(root, ignore_errors=True)
+    out[1]["seconds"] = round(time.perf_counter() - t0, 3)
+    return out
