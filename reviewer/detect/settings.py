@@ -36,7 +36,7 @@ class DetectSettings:
     jump_px: float = 1.0         # whole-field shift (px) between frames that marks a stage jump
     transient_max: int = 60      # frames: longest appear-and-leave pairing
     shoulder: float = 0.25       # a peak below this share of a stronger one nearby is its echo
-    fronts: bool = True          # also read each tile through its edges (fronts.py; off: faster)
+    fronts: bool = False         # also read each tile through its edges (fronts.py; scan --dim-fronts)
 
     SCAN_KEYS = ("tile", "windows", "outer", "read_block", "chunk", "blank_level", "fronts")
 
