@@ -108,6 +108,12 @@ def test_short_movie_is_one_part():
     assert len(plan_parts(movie, DetectSettings(), 4)) == 1
 
 
+def test_the_edge_statistic_keeps_a_movie_in_one_part():
+    movie = ArrayMovie(np.zeros((40_000, SIDE, SIDE), np.uint16))
+    assert len(plan_parts(movie, DetectSettings(), 2, min_part=MIN_JOIN)) == 2
+    assert len(plan_parts(movie, DetectSettings(fronts=True), 2, min_part=MIN_JOIN)) == 1
+
+
 def reviewer(*args, env=None, timeout=300):
     return subprocess.run([sys.executable, "-m", "reviewer", *map(str, args)],
                           capture_output=True, text=True, timeout=timeout, env=env)
@@ -163,7 +169,8 @@ def test_bad_split_arguments_are_one_line(tmp_path):
     path = tmp_path / "m.npy"
     np.save(path, _movie(300, None, seed=2))
     for args in (["--workers", "0"], ["--scheduler", "tcp://127.0.0.1:1"],
-                 ["--workers", "2", "--scheduler", "tcp://127.0.0.1:1"]):
+                 ["--workers", "2", "--scheduler", "tcp://127.0.0.1:1"],
+                 ["--dim-fronts", "--workers", "2"]):
         r = reviewer("scan", path, *args, timeout=120)
         assert r.returncode == 2, (args, r.stderr)
         assert len(r.stderr.strip().splitlines()) == 1 and "Traceback" not in r.stderr

@@ -123,8 +123,10 @@ def _window_sums(seg: np.ndarray, windows: tuple[int, ...], ws: Scratch) -> dict
     return out
 
 
-def _maps(xn, lo, hi, windows, outer, inv_sd, robust=True, ws: Scratch | None = None):
-    """Yield (window index, z maps (hi − lo, gy, gx)) for every window."""
+def _maps(xn, lo, hi, windows, outer, inv_sd, robust=True, ws: Scratch | None = None,
+          trend: bool = True):
+    """Yield (window index, z maps (hi − lo, gy, gx)) for every window (`trend`: take each
+    tile's slow trend out of the long windows, over TREND_SPAN frames)."""
     n, gy, gx = xn.shape
     ws = ws or Scratch()
     m = hi - lo
@@ -156,7 +158,7 @@ def _maps(xn, lo, hi, windows, outer, inv_sd, robust=True, ws: Scratch | None = 
                 r0 = lo + step * j0 - c0
                 r1 = r0 + step * (j1 - j0)
                 np.subtract(sw[r0:r1:step], sw[r0 - w: r1 - w: step], out=t)
-                if step * (j1 - j0) >= 64 and w >= TREND_MIN_W:
+                if trend and step * (j1 - j0) >= 64 and w >= TREND_MIN_W:
                     # slow trend (drift moving an edge through a tile): the tile's typical A − B
                     # over TREND_SPAN frames; the median ignores the few frames near real steps
                     parts = max(1, step * (j1 - j0) // TREND_SPAN)
@@ -200,7 +202,7 @@ def _maxima(xn, lo, hi, windows, outer) -> np.ndarray:
 def score_chunk(xn: np.ndarray, lo: int, hi: int, windows: tuple[int, ...], tile: int,
                 outer: int = 0, inv_sd: np.ndarray | None = None,
                 scratch: Scratch | None = None, k_eff: float | None = None,
-                own_rows: int | None = None) -> ChunkScores:
+                own_rows: int | None = None, trend: bool = True) -> ChunkScores:
     """Scores for buffer rows lo..hi-1 of xn (L, gy, gx), which must hold (1 + outer)·max(w)
     rows of context on each side where the movie has them. `frac` counts the first `own_rows`
     tile rows only (a band of a larger grid: its overlap with the next band is counted there);
@@ -212,7 +214,7 @@ def score_chunk(xn: np.ndarray, lo: int, hi: int, windows: tuple[int, ...], tile
     if inv_sd is None:
         inv_sd = 1.0 / noise_sd(xn)
     ws = scratch or Scratch()
-    for k, z, step in _maps(xn, lo, hi, windows, outer, inv_sd, ws=ws):
+    for k, z, step in _maps(xn, lo, hi, windows, outer, inv_sd, ws=ws, trend=trend):
         if k == 0:
             # share of tiles that changed, around the field's typical change (a local change
             # moves every other tile a little through the beam normalisation: not spread)
@@ -243,7 +245,8 @@ OVERLAP = max(h for h, _ in SHAPES) - 1  # tile rows shared by neighbouring band
 
 def score_bands(xn: np.ndarray, lo: int, hi: int, windows: tuple[int, ...], tile: int,
                 outer: int = 0, inv_sd: np.ndarray | None = None,
-                scratch: Scratch | None = None, cells: int | None = None) -> ChunkScores:
+                scratch: Scratch | None = None, cells: int | None = None,
+                trend: bool = True, k_eff: float | None = None) -> ChunkScores:
     """score_chunk in bands of tile rows for large grids, so the work buffers stay near `cells`
     values whatever the frame size. Bands overlap by OVERLAP rows, so every pooled box lies wholly
     in one band; per frame the per-window maxima are the bands' maxima and the location comes
@@ -254,8 +257,9 @@ def score_bands(xn: np.ndarray, lo: int, hi: int, windows: tuple[int, ...], tile
     span = (hi - lo) + 2 * (1 + outer) * max(windows)
     rows = max(2 * OVERLAP, (cells or BAND_CELLS) // max(span * gx, 1))
     if rows + OVERLAP >= gy:
-        return score_chunk(xn, lo, hi, windows, tile, outer, inv_sd, scratch)
-    k_eff = null_tests(gy, gx, tuple(windows), outer)
+        return score_chunk(xn, lo, hi, windows, tile, outer, inv_sd, scratch, trend=trend,
+                           k_eff=k_eff)
+    k_eff = k_eff or null_tests(gy, gx, tuple(windows), outer)
     inv = np.asarray(inv_sd, np.float32).reshape(gy, gx)
     out: ChunkScores | None = None
     best = None
@@ -263,7 +267,7 @@ def score_bands(xn: np.ndarray, lo: int, hi: int, windows: tuple[int, ...], tile
     for r0 in range(0, gy, rows):
         r1 = min(gy, r0 + rows + OVERLAP)
         cs = score_chunk(xn[:, r0:r1], lo, hi, windows, tile, outer, inv[r0:r1], scratch,
-                         k_eff=k_eff, own_rows=min(rows, r1 - r0))
+                         k_eff=k_eff, own_rows=min(rows, r1 - r0), trend=trend)
         count += cs.frac
         cs.y += np.float32(r0 * tile)
         located = np.where(np.isfinite(cs.x), cs.smax, -1.0)

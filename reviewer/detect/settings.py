@@ -36,8 +36,9 @@ class DetectSettings:
     jump_px: float = 1.0         # whole-field shift (px) between frames that marks a stage jump
     transient_max: int = 60      # frames: longest appear-and-leave pairing
     shoulder: float = 0.25       # a peak below this share of a stronger one nearby is its echo
+    fronts: bool = False         # also read each tile through its edges (fronts.py; scan --dim-fronts)
 
-    SCAN_KEYS = ("tile", "windows", "outer", "read_block", "chunk", "blank_level")
+    SCAN_KEYS = ("tile", "windows", "outer", "read_block", "chunk", "blank_level", "fronts")
 
     def __post_init__(self) -> None:
         if not self.sensitivity > 0:

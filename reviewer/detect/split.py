@@ -103,7 +103,10 @@ def chunk_plan(movie, s: DetectSettings) -> list[tuple[int, int, bool]]:
 
 def plan_parts(movie, s: DetectSettings, parts: int, min_part: int = MIN_PART) -> list[Part]:
     """At most `parts` parts of about equal length, split where the whole scan closes a drift
-    window; one part when the movie is too short to split."""
+    window; one part when the movie is too short to split, or when the edge statistic is on (its
+    128-frame templates do not yet carry across a join)."""
+    if s.fronts:
+        parts = 1
     plan = chunk_plan(movie, s)
     n = movie.n_frames
     ctx = _scanner(movie, s, 1).ctx

@@ -12,6 +12,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from reviewer.detect import fronts as fr
 from reviewer.detect.drift import explained_shift, phase_shift
 from reviewer.detect.pulse import null_pulse_tests, pulse_chunk
 from reviewer.detect.readahead import read_ahead
@@ -74,6 +75,12 @@ class _Scanner:
         self.chunk = min(s.chunk, max(64, CHUNK_CELLS // (self.gy * self.gx)))
         cap = self.chunk + 2 * self.ctx + min(s.read_block, block_rows)
         self.buf = np.empty((cap, self.gy, self.gx), np.float32)
+        # dim fronts (fronts.py): edge-weighted tile values under two templates, rows like buf's
+        self.front_b = fr.front_bin(tuple(shape), self.tile) if s.fronts else None
+        reach = max(1 + s.outer, 2) * max(s.windows)
+        self.fronts = fr.FrontDelay(self.gy, self.gx, self.tile, self.front_b, reach) \
+            if self.front_b and reach <= self.ctx else None
+        self.fbuf = np.empty((cap, 2, self.gy, self.gx), np.float32) if self.fronts else None
         self.fill = 0          # rows of buf in use
         self.base = 0          # absolute index of buffer row 0
         self.scored = 0        # frames scored so far
@@ -116,26 +123,63 @@ class _Scanner:
         return np.lib.format.open_memmap(self.workdir / f"{name}.npy", mode="w+", dtype=dtype,
                                          shape=shape if isinstance(shape, tuple) else (shape,))
 
-    def reduce(self, block: np.ndarray) -> np.ndarray:
-        """Raw frames -> tile sums (non-finite pixels masked); the one pass over every pixel."""
-        if block.dtype.kind in "fc" and not np.isfinite(block).all():
-            return self._masked(block)
-        return bin_block(block, self.tile, self.gy, self.gx)
+    def reduce(self, block: np.ndarray):
+        """Raw frames -> tile sums (non-finite pixels masked); the one pass over every pixel.
+        With the front statistic on: the finished epochs' (start, tiles, front values) (blocks
+        must then come in order)."""
+        masked = block.dtype.kind in "fc" and not np.isfinite(block).all()
+        if masked:
+            tiles = self._masked(block)
+            block = np.where(np.isfinite(block), block, 0)
+        elif self.fronts is None or self.front_b == 1:
+            tiles = bin_block(block, self.tile, self.gy, self.gx)
+        if self.fronts is None:
+            return tiles
+        b = self.front_b
+        if b == 1:
+            images = block  # copied by the front delay
+        else:  # binned once; the tile sums are sums of those bins
+            images = bin_block(block, b, block.shape[1] // b, block.shape[2] // b)
+            if not masked:
+                tiles = bin_block(images, self.tile // b, self.gy, self.gx)
+        # the epochs' templates and projections run here, in the reader thread (reduce is
+        # called in order), beside the scoring of earlier rows
+        return self.fronts.push(tiles, images)
 
-    def feed(self, start: int, tiles: np.ndarray) -> None:
-        """Take the next frames' tile sums (reduce()); scores a chunk when enough have come."""
+    def feed(self, start: int, tiles) -> None:
+        """Take the next frames' reduce() output; scores a chunk when enough have come (with
+        the front statistic, rows arrive an epoch at a time)."""
+        if self.fronts is None:
+            self._feed_rows(start, tiles, None)
+            return
+        for s0, t, front in tiles:
+            self._feed_rows(s0, t, front)
+
+    def _aligned(self, upto: int) -> int:
+        """With fronts, chunks end on a template boundary where they can (whole segments)."""
+        fd = self.fronts
+        if fd is None:
+            return upto
+        a = fd.reach + (upto - fd.reach) // fd.epoch * fd.epoch
+        return a if a > self.scored else upto
+
+    def _feed_rows(self, start: int, tiles: np.ndarray, front: np.ndarray | None) -> None:
         k = len(tiles)
         if self.fill + k > len(self.buf):
             self.buf = np.concatenate([self.buf, np.empty_like(self.buf[: k])])
+            if self.fbuf is not None:
+                self.fbuf = np.concatenate([self.fbuf, np.empty_like(self.fbuf[: k])])
         xn = self.buf[self.fill: self.fill + k]
         xn[...] = tiles
+        if front is not None:
+            self.fbuf[self.fill: self.fill + k] = front
         # beam level: total over the field (a local change of a few hundred px moves the total
         # little; a beam change moves every tile); kept raw until the rows are normalised
         self.f["level"][start: start + k] = xn.reshape(k, -1).sum(axis=1, dtype=np.float64)
         self.fill += k
         end = self.base + self.fill
         if end - self.scored >= self.chunk + self.ctx:
-            self._score(end - self.ctx)
+            self._score(self._aligned(end - self.ctx))
 
     def _masked(self, block: np.ndarray) -> np.ndarray:
         """Tile sums of frames with non-finite pixels: those pixels are left out and each tile's
@@ -194,14 +238,17 @@ class _Scanner:
                     & (level != 0) & (self.ref_total > 0)
             scale = np.where(good, (self.ref0 or 1.0) / np.where(good, level, 1.0), 1.0)
             xn *= scale.astype(np.float32)[:, None, None]
+            if self.fbuf is not None:  # (blanked rows: held by the front delay)
+                self.fbuf[a - self.base: b - self.base] *= scale.astype(np.float32)[:, None,
+                                                                                     None, None]
             self.f["blank"][a:b] = ~good
             first = int(np.argmax(good)) if good.any() else len(good)
             if not self.seen_good:
                 self.head_blank.extend(range(a, a + first))
                 if first < len(good):  # blanked start: hold the mean of the first good frames
                     hold = xn[first:][good[first:]][:HOLD].mean(axis=0)
-                    self.buf[max(self.head_blank[0] - self.base, 0) if self.head_blank else 0:
-                             a - self.base + first] = hold
+                    r0 = max(self.head_blank[0] - self.base, 0) if self.head_blank else 0
+                    self.buf[r0: a - self.base + first] = hold
                     self.head_blank = []
                     self.seen_good = True
             if self.seen_good:
@@ -230,6 +277,37 @@ class _Scanner:
             if explained >= JUMP_EXPLAINED:
                 self.f["jump"][self.scored + j] = shift * self.tile
 
+    def _front_scores(self, cs, upto: int) -> None:
+        """Score the front values of frames scored..upto-1, one template segment at a time, and
+        keep per frame whichever statistic (tile sums or fronts) is stronger."""
+        fd, s = self.fronts, self.s
+        first = next((k for k, w in enumerate(s.windows) if w >= fr.FRONT_MIN_W), 0)
+        for e in range(fd.scoring_epoch(self.scored), fd.scoring_epoch(upto - 1) + 1):
+            s0 = max(self.scored, e * fd.epoch + fd.reach if e else 0)
+            s1 = min(upto, (e + 1) * fd.epoch + fd.reach)
+            if s1 <= s0 or e in fd.empty or e + 1 in fd.empty:
+                continue
+            r0 = max(0, s0 - self.base - self.ctx)
+            r1 = min(self.fill, s1 - self.base + self.ctx)
+            ser = fd.detrend(fd.series(self.fbuf[r0:r1, 0], self.fbuf[r0:r1, 1],
+                                       self.base + r0, e))
+            # the long windows only: a dim front needs them, and a change the short window sees
+            # is strong enough for the tile sums
+            fs = score_bands(ser, s0 - self.base - r0, s1 - self.base - r0, s.windows[first:],
+                             self.tile, s.outer, fd.inv_sd(e, self.gain, ser), self.scratch,
+                             trend=False, k_eff=cs.k_eff)
+            if first:
+                pw = np.zeros((len(fs.smax), len(s.windows)), np.float32)
+                pw[:, first:] = fs.per_window
+                fs.per_window = pw
+                fs.best_window = (fs.best_window + first).astype(np.int8)
+            j = slice(s0 - self.scored, s1 - self.scored)
+            # per frame the stronger statistic wins whole (scores, place, onset: an echo of a
+            # tile change must keep that change's place to be recognised as its echo)
+            take = fs.smax > cs.smax[j]
+            for name in ("sign", "x", "y", "shift", "best_window", "smax", "per_window"):
+                getattr(cs, name)[j][take] = getattr(fs, name)[take]
+
     def _remember(self, levels: np.ndarray) -> None:
         """Keep the last 64 good frames' levels (a ring) for the blank test's reference."""
         v = levels[-len(self.recent):]
@@ -243,6 +321,8 @@ class _Scanner:
         return float(np.partition(r, len(r) // 2)[len(r) // 2])
 
     def finish(self) -> None:
+        for s0, t, front in self.fronts.flush() if self.fronts is not None else []:
+            self._feed_rows(s0, t, front)
         end = self.base + self.fill
         if end > self.scored:
             self._score(end)
@@ -271,6 +351,13 @@ class _Scanner:
         inv_sd = 1.0 / noise_sd(xn, self.gain)  # the means follow the scene
         cs = score_bands(xn, lo, hi, self.s.windows, self.tile, self.s.outer, inv_sd,
                          self.scratch)
+        if hi - lo >= 32:  # the front statistic doubles the tests (its own boxes, same grid)
+            self.k_medians.append(cs.k_eff * (2 if self.fronts is not None else 1))
+        # whole-field shift at the strongest changes and where many tiles changed at once (stage
+        # jump test): kept where the shift explains most of the change
+        self._stage_jumps(xn, lo, cs)
+        if self.fronts is not None:
+            self._front_scores(cs, upto)
         sl = slice(self.scored, upto)
         f = self.f
         f["smax"][sl], f["zw"][sl], f["best_window"][sl] = cs.smax, cs.per_window, cs.best_window
@@ -278,11 +365,6 @@ class _Scanner:
         f["shift"][sl] = cs.shift
         ps = pulse_chunk(self.buf[: self.fill], lo, hi, self.tile, self.gain)
         f["pmax"][sl], f["px"][sl], f["py"][sl], f["pdur"][sl] = ps.pmax, ps.x, ps.y, ps.dur
-        if hi - lo >= 32:
-            self.k_medians.append(cs.k_eff)
-        # whole-field shift at the strongest changes and where many tiles changed at once (stage
-        # jump test): kept where the shift explains most of the change
-        self._stage_jumps(xn, lo, cs)
         # slow drift (a feature for the viewer, not used for scoring): shift of the mean image of
         # the last DRIFT_EVERY frames or more against the previous one's
         self.mean_sum += xn[lo:hi].sum(axis=0, dtype=np.float64)
@@ -300,6 +382,8 @@ class _Scanner:
         keep = max(0, self.fill - 2 * self.ctx)
         if keep:
             self.buf[: self.fill - keep] = self.buf[keep: self.fill]
+            if self.fbuf is not None:
+                self.fbuf[: self.fill - keep] = self.fbuf[keep: self.fill]
             self.fill -= keep
             self.base += keep
     def _scalar(self, name: str, value: float) -> np.ndarray:
