@@ -26,6 +26,8 @@ load average before → after each run):
   A    5.0 → 6.9  0.33 s  4.83 s   2.91 s     1.66x    | 16.24 s     9.81 s  1.65x    |  9 ms
   B    4.6 → 7.2  0.75 s  8.82 s   7.04 s     1.25x    | 24.42 s    18.65 s  1.31x    |  5 ms
   C    3.2 → 7.3  0.85 s  11.04 s  6.55 s     1.69x    | 22.13 s    17.91 s  1.24x    | 83 ms
+  D    0.4 → 1.7  0.30 s  4.89 s   2.32 s     2.11x    | 11.86 s     5.94 s  2.00x    |  1 ms
+(D: the machine otherwise idle.)
 One scan uses ~1.1 cores (its read-ahead thread), so 2 workers on 2 cores can give at most ~1.8x;
 the other sessions' load takes the rest (B: the raw read itself was 2.3x slower than in A). Peak
 RssAnon per worker: +7..12 MiB scanning the 4 movies; the long movie +72..74 MiB whole, and split
