@@ -23,6 +23,7 @@ from reviewer.tui import keymap as km
 from reviewer.tui.actions import ReviewActions
 from reviewer.tui.guard import AlertLine, Banner, GuardMixin
 from reviewer.tui.labels import load_labels
+from reviewer.tui.legend import ChangeLegend, legend_text
 from reviewer.tui.scanning import ScanMixin
 from reviewer.tui.seeing import SeeingMixin
 from reviewer.tui.status import LONG_MOVIE_S, KeyBar, StatusLine, decimals_for
@@ -86,6 +87,7 @@ class ReviewApp(SeeingMixin, GuardMixin, ScanMixin, ReviewActions, App):
             yield from self.compose_seeing()  # loupe and kymograph column (tui/seeing.py)
             yield EventList(id="events")
         yield from self.compose_scale()
+        yield ChangeLegend(id="legend")
         yield Timeline(id="timeline")
         yield ProgressBar(id="scanbar", total=self.movie.n_frames, show_eta=True)
         yield AlertLine(id="alert")
@@ -225,6 +227,17 @@ class ReviewApp(SeeingMixin, GuardMixin, ScanMixin, ReviewActions, App):
     def update_status(self) -> None:
         self.status.show(self.frame, self.movie.n_frames, self.session.time_of(self.frame),
                          self.current_event(), self.status_extras())
+        self.show_legend()
+
+    def show_legend(self) -> None:
+        """The what-changed view's legend row, only while that view is shown."""
+        from reviewer.tui.frameview import CHANGE_SMOOTH_PX
+
+        legend = self.query_one("#legend", ChangeLegend)
+        legend.display = self.frameview.mode == "change"
+        if legend.display:
+            legend.set_legend(legend_text(self.frameview.change_sds, CONTEXT_FRAMES,
+                                          CHANGE_SMOOTH_PX, self.frameview.system))
 
     def status_extras(self) -> dict:
         counts = self.session.counts()

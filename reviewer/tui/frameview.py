@@ -123,6 +123,11 @@ class FrameView(frame_pixels.TruePixels, Widget):
         return CLIPS[self._clip]
 
     @property
+    def change_sds(self) -> float:
+        """Noise standard deviations at which the what-changed view reaches full colour."""
+        return CHANGE_SDS[self._clip]
+
+    @property
     def zoom(self) -> float:
         return self._zoom
 
