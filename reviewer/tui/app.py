@@ -234,8 +234,10 @@ class ReviewApp(SeeingMixin, GuardMixin, ScanMixin, ReviewActions, App):
         from reviewer.tui.frameview import CHANGE_SMOOTH_PX
 
         legend = self.query_one("#legend", ChangeLegend)
-        legend.display = self.frameview.mode == "change"
-        if legend.display:
+        shown = self.frameview.mode == "change"
+        if legend.display != shown:  # a change of display costs a layout pass
+            legend.display = shown
+        if shown:
             legend.set_legend(legend_text(self.frameview.change_sds, CONTEXT_FRAMES,
                                           CHANGE_SMOOTH_PX, self.frameview.system))
 
