@@ -225,6 +225,7 @@ def test_tmux_and_pipes_get_half_blocks_unless_forced():
 def test_review_in_a_terminal_that_never_answers_starts_at_once(tmp_path):
     """`reviewer review --graphics auto` in a pty nobody answers: the UI starts (alternate screen)
     less than a second after the question was asked."""
+    import contextlib
     import pty
     import select
     import signal
@@ -255,7 +256,17 @@ def test_review_in_a_terminal_that_never_answers_starts_at_once(tmp_path):
                 started = time.monotonic()
     finally:
         os.kill(pid, signal.SIGTERM)
-        os.waitpid(pid, 0)
+        # read on while it closes (restoring the screen writes to the pty: unread, that write would
+        # block it); SIGKILL if it has not gone within 20 s
+        gone, stop = False, time.monotonic() + 20
+        while not gone and time.monotonic() < stop:
+            if select.select([fd], [], [], 0.05)[0]:
+                with contextlib.suppress(OSError):
+                    os.read(fd, 65536)
+            gone = os.waitpid(pid, os.WNOHANG)[0] == pid
+        if not gone:
+            os.kill(pid, signal.SIGKILL)
+            os.waitpid(pid, 0)
         os.close(fd)
     assert asked is not None, got[-300:]
     assert started is not None and started - asked < 1.0, started - asked
