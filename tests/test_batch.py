@@ -6,10 +6,6 @@ from __future__ import annotations
 import dataclasses
 import json
 import os
-import shutil
-import subprocess
-import sys
-import time
 from pathlib import Path
 
 import numpy as np
@@ -18,15 +14,12 @@ import pytest
 
 pytest.importorskip("distributed")
 
+from dask_processes import dask_processes, reviewer  # noqa: E402
+
 from reviewer.batch.discover import find_movies  # noqa: E402
 from reviewer.batch.job import scan_path  # noqa: E402
 from reviewer.detect import DetectSettings  # noqa: E402
 from sample_movies.growth import PRESETS, generate  # noqa: E402
-
-
-def reviewer(*args, env=None, timeout=300):
-    return subprocess.run([sys.executable, "-m", "reviewer", *map(str, args)],
-                          capture_output=True, text=True, timeout=timeout, env=env)
 
 
 @pytest.fixture
@@ -86,36 +79,9 @@ def test_local_cluster_matches_single_process_scan(archive, tmp_path):
         pd.testing.assert_frame_equal(batch, pd.read_csv(single))
 
 
-def _wait_for(path: Path, seconds: float = 60) -> None:
-    end = time.monotonic() + seconds
-    while time.monotonic() < end:
-        if path.exists() and path.stat().st_size > 0:
-            return
-        time.sleep(0.2)
-    raise TimeoutError(f"{path} did not appear")
-
-
 def test_scheduler_and_worker_processes(archive, tmp_path):
-    dask = shutil.which("dask", path=os.path.dirname(sys.executable)) or shutil.which("dask")
-    if dask is None:
-        pytest.skip("the dask command is not installed")
     env = dict(os.environ)
-    info = tmp_path / "scheduler.json"
-    procs = [subprocess.Popen([dask, "scheduler", "--host", "127.0.0.1", "--port", "0",
-                               "--no-dashboard", "--scheduler-file", str(info)], env=env,
-                              stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)]
-    try:
-        _wait_for(info)
-        address = json.loads(info.read_text())["address"]
-        for _ in range(2):
-            procs.append(subprocess.Popen(
-                [dask, "worker", address, "--nworkers", "1", "--nthreads", "1", "--no-dashboard",
-                 "--host", "127.0.0.1"], env=env, stdout=subprocess.DEVNULL,
-                stderr=subprocess.DEVNULL))
-        from distributed import Client
-
-        with Client(address, timeout="30s") as c:
-            c.wait_for_workers(2, timeout=60)
+    with dask_processes(tmp_path) as address:
         summary = tmp_path / "summary.csv"
         r = reviewer("batch", archive, "--recursive", "--scheduler", address, "-o", summary,
                      env=env)
@@ -139,14 +105,6 @@ def test_scheduler_and_worker_processes(archive, tmp_path):
         rows = json.loads(summary.read_text())
         assert forced.returncode == 1 and sorted(r["status"] for r in rows) == ["done"] * 4 + [
             "failed"]
-    finally:
-        for p in procs[::-1]:
-            p.terminate()
-        for p in procs:
-            try:
-                p.wait(timeout=20)
-            except subprocess.TimeoutExpired:
-                p.kill()
 
 
 def test_bad_arguments_are_one_line(archive, tmp_path):

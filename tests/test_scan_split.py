@@ -6,12 +6,10 @@ splitting a long movie over idle workers."""
 
 from __future__ import annotations
 
-import subprocess
-import sys
-
 import numpy as np
 import pandas as pd
 import pytest
+from dask_processes import dask_processes, reviewer
 
 from reviewer.detect import DetectSettings, compute_features, propose
 from reviewer.detect.split import SCORE_TOLERANCE, plan_parts, scan_in_parts
@@ -114,11 +112,6 @@ def test_the_edge_statistic_keeps_a_movie_in_one_part():
     assert len(plan_parts(movie, DetectSettings(fronts=True), 2, min_part=MIN_JOIN)) == 1
 
 
-def reviewer(*args, env=None, timeout=300):
-    return subprocess.run([sys.executable, "-m", "reviewer", *map(str, args)],
-                          capture_output=True, text=True, timeout=timeout, env=env)
-
-
 def test_scan_workers_matches_the_whole_scan(tmp_path):
     pytest.importorskip("distributed")
     path = tmp_path / "long.npy"
@@ -180,33 +173,9 @@ def test_bad_split_arguments_are_one_line(tmp_path):
 def test_scan_on_scheduler_and_worker_processes(tmp_path):
     """`reviewer scan --scheduler` against `dask scheduler` and two `dask worker` processes (heavy:
     the same split as --workers, on the engine test_batch.py already runs as processes)."""
-    pytest.importorskip("distributed")
-    import json
-    import os
-    import shutil
-    import time
-
-    dask = shutil.which("dask", path=os.path.dirname(sys.executable)) or shutil.which("dask")
-    if dask is None:
-        pytest.skip("the dask command is not installed")
     path = tmp_path / "long.npy"
     np.save(path, _movie(9000, 4154, seed=6))
-    info = tmp_path / "scheduler.json"
-    quiet = {"stdout": subprocess.DEVNULL, "stderr": subprocess.DEVNULL}
-    procs = [subprocess.Popen([dask, "scheduler", "--host", "127.0.0.1", "--port", "0",
-                               "--no-dashboard", "--scheduler-file", str(info)], **quiet)]
-    try:
-        end = time.monotonic() + 60
-        while not (info.exists() and info.stat().st_size) and time.monotonic() < end:
-            time.sleep(0.2)
-        address = json.loads(info.read_text())["address"]
-        procs += [subprocess.Popen([dask, "worker", address, "--nworkers", "1", "--nthreads",
-                                    "1", "--no-dashboard", "--host", "127.0.0.1"], **quiet)
-                  for _ in range(2)]
-        from distributed import Client
-
-        with Client(address, timeout="30s") as c:
-            c.wait_for_workers(2, timeout=60)
+    with dask_processes(tmp_path) as address:
         whole, split = tmp_path / "whole.csv", tmp_path / "split.csv"
         r = reviewer("scan", path, "-o", whole, "--force")
         assert r.returncode == 0, r.stderr
@@ -216,11 +185,3 @@ def test_scan_on_scheduler_and_worker_processes(tmp_path):
         got = pd.read_csv(split)
         assert ((got["kind"] == "step") & ((got["frame"] - 4154).abs() <= 1)).any()
         pd.testing.assert_frame_equal(pd.read_csv(whole), got)
-    finally:
-        for p in procs[::-1]:
-            p.terminate()
-        for p in procs:
-            try:
-                p.wait(timeout=20)
-            except subprocess.TimeoutExpired:
-                p.kill()
