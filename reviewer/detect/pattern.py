@@ -14,7 +14,7 @@ tile's own level change (d ∝ S: an island, the beam) is taken out,
 
 and 2×2 tiles are pooled (χ² with 4·(CELL² − 1) degrees of freedom). Whole-field motion is modelled
 before: a sub-pixel drift gives d ≈ −δ·∇S, a focus change d ∝ ∇²S, a beam change d ∝ S; the four
-coefficients are fitted per frame by weighted least squares (weights 1/S) on every SAMPLE-th row,
+coefficients are fitted per frame by weighted least squares (weights 1/S) on every few rows,
 and where they explain more than MODEL_CHI2 (a χ²(3) far in its tail) the fitted field is
 subtracted from d before Q is formed. The gain is measured, not assumed: the median over frames of
 the per-frame median tile Q, divided by the χ² median. Per frame the scan keeps the largest Q of
@@ -35,9 +35,10 @@ from reviewer.detect.statistics import calibrate_max, effective_tests
 PATTERN_PIXELS = 1 << 20  # binned frame at most this many bins (bigger frames binned more)
 CELL = 4  # bins per side of a pattern tile
 DOF = (CELL * CELL - 1, 4 * (CELL * CELL - 1))  # single tiles, 2×2 tiles
-SUB = 1 << 21  # bin-frames processed at a time (at least one frame)
+SUB = 1 << 20  # bin-frames processed at a time (at least one frame)
 RESYNC = 512  # window sums recomputed from the frames this often (float rounding stays bounded)
-SAMPLE = 4  # the whole-field model is fitted on every SAMPLE-th row of bins
+SAMPLE = 8  # the whole-field model is fitted on every SAMPLE-th row of bins (at most)
+MEDIAN_TILES = 1024  # the per-frame median tile Q is taken over at most about this many tiles
 MODEL_CHI2 = 30.0  # the model is subtracted where it explains more than this (χ²(3): p ≈ 1e-6)
 WIDE = 2.0  # a frame whose median tile Q is this many times the null median changed everywhere
 PATTERN_SHARE = 0.5  # share of the false-alarm budget for the pattern test (a fourth test)
@@ -90,23 +91,27 @@ def tile_q(d: np.ndarray, s: np.ndarray, cell: int = CELL) -> np.ndarray:
     return out
 
 
-def _sampled(s: np.ndarray, step: int) -> tuple[list[np.ndarray], tuple]:
+def _sampled(s: np.ndarray, step: int) -> tuple[np.ndarray, tuple]:
     """The regressors S, ∂S/∂y, ∂S/∂x and ∇²S (central differences) on every step-th inner row
-    of (m, H, W) window sums, inner columns only, and the index of those bins."""
-    ys = np.arange(1, s.shape[1] - 1, step)
-    mid, up, down = s[:, ys], s[:, ys - 1], s[:, ys + 1]
+    of (m, H, W) window sums, inner columns only, as one (m, 4, rows, cols) array, and the index
+    of those bins."""
+    hh = s.shape[1]
+    rows = slice(1, hh - 1, step)
+    mid, up, down = s[:, rows], s[:, 0: hh - 2: step], s[:, 2::step]
+    out = np.empty((len(s), 4, mid.shape[1], s.shape[2] - 2), np.float32)
     inner = (slice(None), slice(None), slice(1, -1))
-    gy = (down - up)[inner]
-    lap = (down + up)[inner]
-    lap -= 4 * mid[inner]
+    out[:, 0] = mid[inner]
+    np.subtract(down[inner], up[inner], out=out[:, 1])
+    np.subtract(mid[:, :, 2:], mid[:, :, :-2], out=out[:, 2])
+    lap = out[:, 3]
+    np.add(down[inner], up[inner], out=lap)
+    lap -= 4 * out[:, 0]
     lap += mid[:, :, 2:]
     lap += mid[:, :, :-2]
-    gx = mid[:, :, 2:] - mid[:, :, :-2]
-    return [mid[inner], gy, gx, lap], (slice(None), ys[:, None], np.arange(1, s.shape[2] - 1))
+    return out, (slice(None), rows, slice(1, -1))
 
 
-def field_model(d: np.ndarray, s: np.ndarray, step: int = SAMPLE) -> tuple[np.ndarray,
-                                                                            np.ndarray]:
+def field_model(d: np.ndarray, s: np.ndarray, step: int) -> tuple[np.ndarray, np.ndarray]:
     """Per frame of (m, H, W) d and s (s > 0): the coefficients (m, 4) of the whole-field model
     d ≈ β₀·S + β₁·∂S/∂y + β₂·∂S/∂x + β₃·∇²S (weights 1/S, fitted on every step-th row), and the
     energy the motion part (β₁..β₃) explains beyond the level, in units of g (≈ χ²(3) when
@@ -115,17 +120,11 @@ def field_model(d: np.ndarray, s: np.ndarray, step: int = SAMPLE) -> tuple[np.nd
     if s.shape[1] < 3 or s.shape[2] < 3:
         return np.zeros((m, 4)), np.zeros(m)
     reg, at = _sampled(s, step)
-    dd = d[at]
-    ss = reg[0]
-    k = len(reg)
-    gram = np.empty((m, k, k))
-    rhs = np.empty((m, k))
-    w = [r / ss for r in reg]
-    for i in range(k):
-        rhs[:, i] = np.einsum("nij,nij->n", w[i], dd, dtype=np.float64)
-        for j in range(i, k):
-            gram[:, i, j] = gram[:, j, i] = np.einsum("nij,nij->n", w[i], reg[j],
-                                                      dtype=np.float64)
+    reg = reg.reshape(m, 4, -1)
+    weighted = reg / reg[:, :1]  # G_k / S
+    gram = np.einsum("nkp,nlp->nkl", weighted, reg).astype(np.float64)
+    rhs = np.einsum("nkp,np->nk", weighted, d[at].reshape(m, -1)).astype(np.float64)
+    k = reg.shape[1]
     gram += np.eye(k)[None] * 1e-9 * np.trace(gram, axis1=1, axis2=2)[:, None, None]
     beta = np.linalg.solve(gram, rhs[..., None])[..., 0]
     level = rhs[:, 0] ** 2 / np.maximum(gram[:, 0, 0], 1e-30)
@@ -163,7 +162,11 @@ class PatternTrack:
         self.hh, self.ww = shape[0] // self.b, shape[1] // self.b
         self.gy, self.gx = self.hh // CELL, self.ww // CELL
         self.per = max(1, SUB // max(self.hh * self.ww, 1))  # outputs per sub-block
-        self.cap = 2 * self.w + self.per
+        self.step = int(np.clip(self.hh // 16, 2, SAMPLE))  # rows: at least ~16 in the fit
+        self.spread = max(1, self.gy * self.gx // MEDIAN_TILES)
+        # the ring of binned frames: room for 4 sub-blocks, so few reads wrap round (a wrapped
+        # read is a copy); one frame at a time needs no more than the windows
+        self.cap = 2 * self.w + (4 * self.per if self.per > 1 else 1)
         self.ring = np.zeros((self.cap, self.hh, self.ww), np.float32)
         self.seen = 0  # frames pushed
         self.next = self.w  # next frame to score
@@ -217,8 +220,9 @@ class PatternTrack:
             self._resync()
         new, mid, old = self._rows(t0 + w, m), self._rows(t0, m), self._rows(t0 - w, m)
         inc_s = new - old
-        inc_d = inc_s + 2 * old
-        inc_d -= 2 * mid  # x(t + w) − 2·x(t) + x(t − w): D(t + 1) − D(t)
+        inc_d = new + old
+        inc_d -= mid
+        inc_d -= mid  # x(t + w) − 2·x(t) + x(t − w): D(t + 1) − D(t)
         d = np.empty((m, self.hh, self.ww), np.float32)
         s = np.empty_like(d)
         d[0], s[0] = self.dsum, self.ssum
@@ -231,14 +235,14 @@ class PatternTrack:
         # bins with no counts (or offset data): the variance of a typical bin
         floor = np.maximum(0.05 * s.reshape(m, -1).mean(axis=1), 1e-6).astype(np.float32)
         np.maximum(s, floor[:, None, None], out=s)
-        beta, explained = field_model(d, s)
+        beta, explained = field_model(d, s, self.step)
         moved = explained > MODEL_CHI2
         if moved.any():
             d[moved] = remove_field(d[moved], s[moved], beta[moved])
         q = tile_q(d, s)
         sl = slice(t0, t0 + m)
         self.model[sl] = explained
-        self.qmed[sl] = np.median(q.reshape(m, -1), axis=1)
+        self.qmed[sl] = np.median(q.reshape(m, -1)[:, :: self.spread], axis=1)
         boxes = [q]
         if self.gy >= 2 and self.gx >= 2:
             boxes.append(q[:, 1:, 1:] + q[:, :-1, 1:] + q[:, 1:, :-1] + q[:, :-1, :-1])
