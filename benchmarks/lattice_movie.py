@@ -8,10 +8,11 @@ contrasts 0.18, 0.14, 0.10) filmed at DOSE counts/px with Poisson noise, under
 - a focus change: a Gaussian blur whose sigma ramps 0.3 -> 1.4 px and back over FOCUS_FRAMES frames
   twice per movie (applied exactly, to each cosine's amplitude: exp(-sigma^2 k^2 / 2)),
 - beam wander: +-3 % over 2,500 frames;
-and, with events=True, at known frames in discs of radius 9-14 px:
+and, with events=True, at known frames in discs of radius 9-14 px that move with the lattice:
 - 7 re-orientations: the disc's lattice turns by 30-90 deg about the disc's centre and stays so,
 - 4 fringe shifts: the disc's lattice jumps by half of its shortest period and stays so.
 Both keep the disc's mean (to within the mean of a cosine over a disc). Per event the truth holds
+the disc's place in the frame where it changes,
 the matched per-frame SNR sqrt(sum_p (mu_after - mu_before)^2 / mu_before) over the disc's pixels
 and the largest per-pixel |change| / sqrt(mu).
 """
@@ -90,8 +91,6 @@ def lattice_movie(n: int = 3000, side: int = 128, dose: float = 20.0, seed: int 
             ev.append(dict(frame=int(t0), kind=kind, x=cx, y=cy, r=r, rot=rot))
     out = np.empty((n, side, side), np.uint16)
     truth = []
-    for e in ev:
-        e["mask"] = (yy - e["y"]) ** 2 + (xx - e["x"]) ** 2 <= e["r"] ** 2
     half = 0.5 * min(PERIODS)
     for t in range(n):
         y, x = yy + shift[t, 0], xx + shift[t, 1]  # the lattice moves with the stage
@@ -99,21 +98,25 @@ def lattice_movie(n: int = 3000, side: int = 128, dose: float = 20.0, seed: int 
         for e in ev:
             if t < e["frame"]:
                 continue
-            m = e["mask"]
-            cy, cx = e["y"] + shift[t, 0], e["x"] + shift[t, 1]
+            cy, cx = e["y"] - shift[t, 0], e["x"] - shift[t, 1]  # the disc moves with the stage
+            # the disc's share of each pixel (a 1 px ramp across its edge: pixels integrate, so
+            # an edge that drifts changes them gradually)
+            share = np.clip(e["r"] + 0.5 - np.hypot(yy - cy, xx - cx), 0.0, 1.0)
+            m = share > 0
             if e["kind"] == "reorient":
-                new = _lattice(y[m], x[m], waves, phases, sigma[t], cy, cx, e["rot"])
+                new = _lattice(y[m], x[m], waves, phases, sigma[t], e["y"], e["x"], e["rot"])
             else:
                 ky, kx, _ = waves[0]  # along the shortest period's wave vector
                 k = np.hypot(ky, kx)
                 new = _lattice(y[m] + half * ky / k, x[m] + half * kx / k, waves, phases,
                                sigma[t])
+            new = share[m] * new + (1 - share[m]) * mu[m]
             if t == e["frame"]:
                 before = mu[m] * dose * beam[t]
                 after = new * dose * beam[t]
                 snr = float(np.sqrt(np.sum((after - before) ** 2 / before)))
                 peak = float(np.max(np.abs(after - before) / np.sqrt(before)))
-                truth.append(dict(frame=e["frame"], kind=e["kind"], x=e["x"], y=e["y"],
+                truth.append(dict(frame=e["frame"], kind=e["kind"], x=cx, y=cy,
                                   r=e["r"], rot=e["rot"], snr=snr, pixel_snr=peak))
             mu[m] = new
         out[t] = rng.poisson(np.clip(mu * dose * beam[t], 0, None))

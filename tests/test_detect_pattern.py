@@ -4,6 +4,7 @@ a direct loop, a turning lattice patch found at its frame, and quiet under drift
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 import pytest
 from lattice_movies import fringe_movie
 from scipy import integrate, stats
@@ -110,3 +111,22 @@ def test_quiet_under_drift_focus_ramp_and_beam_wander():
     r = _scan(movie)
     assert len(r.candidates) == 0
     assert float(np.max(r.features["qmodel"])) > 30.0  # the model was needed, and used
+
+
+def test_wiring_scan_patterns_from_the_command_line(tmp_path, capsys):
+    # `reviewer scan --patterns` writes the pattern candidate; `--patterns --workers 2` is one
+    # line and exit 2, nothing written
+    from reviewer.cli import main
+
+    path = tmp_path / "fringes.npy"
+    np.save(path, fringe_movie(400, 64, 5.0, seed=7, drift=0.005, turn_at=210, turn_deg=60.0,
+                               disc=(30.0, 34.0, 9.0)))
+    out = tmp_path / "c.csv"
+    assert main(["scan", str(path), "--patterns", "-o", str(out)]) == 0
+    rows = pd.read_csv(out)
+    assert list(rows["frame"]) == [210] and list(rows["kind"]) == ["step"]
+    capsys.readouterr()
+    bad = tmp_path / "bad.csv"
+    assert main(["scan", str(path), "--patterns", "--workers", "2", "-o", str(bad)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "--patterns" in err[0] and not bad.exists()

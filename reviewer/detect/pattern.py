@@ -41,7 +41,8 @@ SAMPLE = 8  # the whole-field model is fitted on every SAMPLE-th row of bins (at
 MEDIAN_TILES = 1024  # the per-frame median tile Q is taken over at most about this many tiles
 MODEL_CHI2 = 30.0  # the model is subtracted where it explains more than this (χ²(3): p ≈ 1e-6)
 WIDE = 2.0  # a frame whose median tile Q is this many times the null median changed everywhere
-PATTERN_SHARE = 0.5  # share of the false-alarm budget for the pattern test (a fourth test)
+PATTERN_SHARE = 0.25  # share of the false-alarm budget for the pattern test (measured:
+#                       bench_detect_lattice.py, bench_false_alarms.py --patterns)
 
 
 def pattern_bin(shape: tuple[int, int]) -> int:
@@ -162,7 +163,7 @@ class PatternTrack:
         self.hh, self.ww = shape[0] // self.b, shape[1] // self.b
         self.gy, self.gx = self.hh // CELL, self.ww // CELL
         self.per = max(1, SUB // max(self.hh * self.ww, 1))  # outputs per sub-block
-        self.step = int(np.clip(self.hh // 16, 2, SAMPLE))  # rows: at least ~16 in the fit
+        self.step = int(np.clip(self.hh // 8, 2, SAMPLE))  # rows: at least ~8 in the fit
         self.spread = max(1, self.gy * self.gx // MEDIAN_TILES)
         # the ring of binned frames: room for 4 sub-blocks, so few reads wrap round (a wrapped
         # read is a copy); one frame at a time needs no more than the windows
