@@ -130,3 +130,9 @@ def test_wiring_scan_patterns_from_the_command_line(tmp_path, capsys):
     assert main(["scan", str(path), "--patterns", "--workers", "2", "-o", str(bad)]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and "--patterns" in err[0] and not bad.exists()
+
+
+def test_frames_smaller_than_a_pattern_tile_scan_without_it():
+    movie = np.random.default_rng(9).poisson(20.0, (60, 6, 6)).astype(np.uint16)
+    r = _scan(movie)
+    assert np.all(r.features["pattern"] == 0) and len(r.candidates) == 0
