@@ -38,16 +38,17 @@ def test_tile_q_against_a_direct_loop():
 
 
 def test_track_sums_windows_as_written_out():
-    # one 8×8 frame is one tile of 4×4 two-by-two bins: the track's Q for frame t is tile_q of
-    # (sum of frames t..t+w−1) − (sum of frames t−w..t−1) over their sum, binned by hand
+    # a 12×12 frame is 6×6 two-by-two bins and one tile of the 4×4 bins one bin in: the track's
+    # Q for frame t is tile_q of (sum of frames t..t+w−1) − (sum of frames t−w..t−1) over their
+    # sum, binned by hand
     rng = np.random.default_rng(5)
     w, n = 3, 40
-    movie = rng.poisson(30.0, (n, 8, 8)).astype(np.uint16)
-    tr = PatternTrack(n, (8, 8), w, _ram)
+    movie = rng.poisson(30.0, (n, 12, 12)).astype(np.uint16)
+    tr = PatternTrack(n, (12, 12), w, _ram)
     for a in range(0, n, 7):  # blocks of any length
         tr.push(movie[a: a + 7])
     tr.flush()
-    bins = movie.reshape(n, 4, 2, 4, 2).sum(axis=(2, 4)).astype(np.float64)
+    bins = movie.reshape(n, 6, 2, 6, 2).sum(axis=(2, 4)).astype(np.float64)[:, 1:5, 1:5]
     for t in range(w, n - w):
         after, before = bins[t: t + w].sum(0), bins[t - w: t].sum(0)
         d, s = after - before, after + before
@@ -63,10 +64,10 @@ def test_null_of_q_follows_chi_square():
     # frame, so their Q values are independent.
     w = 4
     n = (2 * w + 1) * 700
-    yy, xx = np.mgrid[:8, :8]
+    yy, xx = np.mgrid[:12, :12]
     mu = 25.0 * (1 + 0.3 * np.cos(2 * np.pi * xx / 5.0) * np.cos(2 * np.pi * yy / 7.0))
-    movie = np.random.default_rng(6).poisson(mu, (n, 8, 8)).astype(np.uint16)
-    tr = PatternTrack(n, (8, 8), w, _ram)
+    movie = np.random.default_rng(6).poisson(mu, (n, 12, 12)).astype(np.uint16)
+    tr = PatternTrack(n, (12, 12), w, _ram)
     tr.push(movie)
     tr.flush()
     q = tr.qmax[w: n - w: 2 * w + 1, 0].astype(np.float64)

@@ -7,7 +7,7 @@ resolution (b = 2, more for frames over PATTERN_PIXELS). With w-frame windows af
     d_p = A_p − B_p,   S_p = A_p + B_p,   E[d_p² | S_p] = g·S_p under Poisson counts (gain g)
 
 (given S_p = s, A_p is binomial(s, ½) when nothing changed: E[(2A − s)²] = s exactly), so every bin
-adds a χ²₁-like term d_p²/(g·S_p). Per pattern tile T (CELL × CELL bins) the part explained by the
+adds a χ²₁-like term d_p²/(g·S_p). Per pattern tile T (CELL × CELL bins, from one bin in) the part explained by the
 tile's own level change (d ∝ S: an island, the beam) is taken out,
 
     Q_T = Σ_T d²/S − (Σ_T d)² / Σ_T S   ~ g·χ²(CELL² − 1) when nothing changed,
@@ -73,13 +73,14 @@ def log_sf(x: np.ndarray, dof: float) -> np.ndarray:
     return np.where(exact > np.log(1e-300), exact, far)
 
 
-def tile_q(d: np.ndarray, s: np.ndarray, cell: int = CELL) -> np.ndarray:
+def tile_q(d: np.ndarray, s: np.ndarray, cell: int = CELL, origin: int = 0) -> np.ndarray:
     """Q per tile of cell × cell bins: Σ d²/s − (Σ d)²/Σ s, for (m, H, W) differences d and sums s
-    (s > 0); bins outside whole tiles are left out. (m, H // cell, W // cell) out."""
+    (s > 0), tiles from bin (origin, origin) on; bins outside whole tiles are left out.
+    (m, (H − origin) // cell, (W − origin) // cell) out."""
     m, hh, ww = d.shape
-    gy, gx = hh // cell, ww // cell
-    d = d[:, : gy * cell, : gx * cell]
-    s = s[:, : gy * cell, : gx * cell]
+    gy, gx = (hh - origin) // cell, (ww - origin) // cell
+    d = d[:, origin: origin + gy * cell, origin: origin + gx * cell]
+    s = s[:, origin: origin + gy * cell, origin: origin + gx * cell]
     q = d * d
     q /= s
 
@@ -134,20 +135,15 @@ def field_model(d: np.ndarray, s: np.ndarray, step: int) -> tuple[np.ndarray, np
 
 def remove_field(d: np.ndarray, s: np.ndarray, beta: np.ndarray) -> np.ndarray:
     """d minus the fitted motion part of the whole-field model (field_model's β₁..β₃; the level
-    part β₀·S changes no tile's Q), in place. The differences of _sampled written as shifted
-    copies of S, S extended linearly by one bin on each side (one-sided gradients at the edges)."""
-    m, hh, ww = s.shape
-    p = np.empty((m, hh + 2, ww + 2), np.float32)
-    p[:, 1:-1, 1:-1] = s
-    p[:, 0, 1:-1] = 2 * s[:, 0] - s[:, 1]
-    p[:, -1, 1:-1] = 2 * s[:, -1] - s[:, -2]
-    p[:, :, 0] = 2 * p[:, :, 1] - p[:, :, 2]
-    p[:, :, -1] = 2 * p[:, :, -2] - p[:, :, -3]
+    part β₀·S changes no tile's Q), in place, on the inner bins (the edge bins only serve as
+    neighbours: the pattern tiles start one bin in). The differences of _sampled written as
+    shifted views of S."""
     b1, b2, b3 = (beta[:, k].astype(np.float32)[:, None, None] for k in (1, 2, 3))
-    for c, view in ((b1 + b3, p[:, 2:, 1:-1]), (b3 - b1, p[:, :-2, 1:-1]),
-                    (b2 + b3, p[:, 1:-1, 2:]), (b3 - b2, p[:, 1:-1, :-2]),
-                    (-4 * b3, p[:, 1:-1, 1:-1])):
-        d -= c * view
+    inner = d[:, 1:-1, 1:-1]
+    for c, view in ((b1 + b3, s[:, 2:, 1:-1]), (b3 - b1, s[:, :-2, 1:-1]),
+                    (b2 + b3, s[:, 1:-1, 2:]), (b3 - b2, s[:, 1:-1, :-2]),
+                    (-4 * b3, s[:, 1:-1, 1:-1])):
+        inner -= c * view
     return d
 
 
@@ -161,7 +157,9 @@ class PatternTrack:
         self.n, self.w = n, max(1, int(window))
         self.b = pattern_bin(shape)
         self.hh, self.ww = shape[0] // self.b, shape[1] // self.b
-        self.gy, self.gx = self.hh // CELL, self.ww // CELL
+        # pattern tiles from bin (1, 1) on: every bin in a tile has its four neighbours, so the
+        # whole-field model's differences are central everywhere they are used
+        self.gy, self.gx = max(self.hh - 2, 0) // CELL, max(self.ww - 2, 0) // CELL
         bins = max(self.hh * self.ww, 1)  # outputs per sub-block: 4 or more up to 512² bins
         self.per = max(SUB // bins, 4 if bins <= 1 << 18 else 1)
         self.step = int(np.clip(self.hh // 8, 2, SAMPLE))  # rows: at least ~8 in the fit
@@ -240,7 +238,7 @@ class PatternTrack:
         moved = explained > MODEL_CHI2
         if moved.any():
             d[moved] = remove_field(d[moved], s[moved], beta[moved])
-        q = tile_q(d, s)
+        q = tile_q(d, s, origin=1)
         sl = slice(t0, t0 + m)
         self.model[sl] = explained
         self.qmed[sl] = np.median(q.reshape(m, -1)[:, :: self.spread], axis=1)
@@ -280,8 +278,8 @@ class PatternTrack:
             at = valid & (best == k)
             cols = self.gx - k  # a 2×2 box grid is one column narrower
             r, c = np.divmod(self.qarg[at, k].astype(np.int64), max(cols, 1))
-            out["qx"][at] = (c + 0.5 * (k + 1)) * cell
-            out["qy"][at] = (r + 0.5 * (k + 1)) * cell
+            out["qx"][at] = (c + 0.5 * (k + 1)) * cell + self.b  # (tiles start one bin in)
+            out["qy"][at] = (r + 0.5 * (k + 1)) * cell + self.b
         out["qwide"] = alloc("qwide", n, np.float32)
         out["qwide"][:] = np.where(valid, self.qmed / (gain * chi2_median(DOF[0])), 0.0)
         out["q_gain"] = scalar("q_gain", gain)
