@@ -137,3 +137,13 @@ def test_frames_smaller_than_a_pattern_tile_scan_without_it():
     movie = np.random.default_rng(9).poisson(20.0, (60, 6, 6)).astype(np.uint16)
     r = _scan(movie)
     assert np.all(r.features["pattern"] == 0) and len(r.candidates) == 0
+
+
+def test_holes_of_non_finite_pixels_are_no_change_of_pattern():
+    # a 20×20 px block of NaN in frames 150-169 of a static lattice: the pattern test holds
+    # those bins and adds no candidate to the tile statistics' own, and its score stays low
+    movie = fringe_movie(300, 64, 20.0, seed=10).astype(np.float32)
+    movie[150:170, 10:30, 20:40] = np.nan
+    r = _scan(movie)
+    pd.testing.assert_frame_equal(r.candidates, _scan(movie, patterns=False).candidates)
+    assert float(r.features["pattern"].max()) < 4.0

@@ -181,12 +181,20 @@ class PatternTrack:
     def bin(self, block: np.ndarray) -> np.ndarray:
         return bin_block(block, self.b, self.hh, self.ww)
 
-    def push(self, block: np.ndarray) -> np.ndarray:
-        """Take the next raw frames (non-finite pixels already set to 0); returns their bins."""
+    def push(self, block: np.ndarray, finite: np.ndarray | None = None) -> np.ndarray:
+        """Take the next raw frames (non-finite pixels already set to 0, `finite` their mask when
+        there were any); returns their bins. A bin with a non-finite pixel holds the mean of the
+        w frames before in the ring (a hole in the data is no change of pattern; one frame held
+        would carry its noise into w frames of a window)."""
         bins = self.bin(block)
         if not (self.gy and self.gx):  # frames smaller than one pattern tile: nothing to score
             return bins
-        for frame in bins:  # the ring holds the last cap frames: score before they are gone
+        holes = None if finite is None else self.bin(~finite) > 0
+        for i, frame in enumerate(bins):  # the ring holds the last cap frames: score first
+            if holes is not None and holes[i].any() and self.seen:
+                k = min(self.w, self.seen)
+                held = self._rows(self.seen - k, k).mean(axis=0)
+                frame = np.where(holes[i], held, frame)
             self.ring[self.seen % self.cap] = frame
             self.seen += 1
             if self.seen - self.next - self.w >= self.per:

@@ -132,11 +132,13 @@ class _Scanner:
         With the front statistic on: the finished epochs' (start, tiles, front values) (blocks
         must then come in order)."""
         masked = block.dtype.kind in "fc" and not np.isfinite(block).all()
+        finite = None
         if masked:
             tiles = self._masked(block)
-            block = np.where(np.isfinite(block), block, 0)
+            finite = np.isfinite(block)
+            block = np.where(finite, block, 0)
         pt = self.pattern
-        bins = pt.push(block) if pt is not None else None
+        bins = pt.push(block, finite) if pt is not None else None
         if masked:
             pass
         elif bins is not None and self.fronts is None and self.tile % pt.b == 0:
