@@ -301,7 +301,8 @@ def pattern_events(f: dict[str, np.ndarray], z_thr: float, blocked: np.ndarray,
     """Local `step` candidates where the pattern score exceeds z_thr: one per ±(w + separation)
     frames, on frames not blocked by a whole-field disturbance and not changed all over
     (qwide ≥ WIDE), and none where a candidate of the other statistics starts at the same place
-    within that reach."""
+    within that reach, unless those are weaker steps: they are then this change seen less
+    sharply (marked `echo`, dropped), and its frame is the pattern test's."""
     if "pattern" not in f:
         return []
     pz, qx, qy = f["pattern"], f["qx"], f["qy"]
@@ -316,9 +317,12 @@ def pattern_events(f: dict[str, np.ndarray], z_thr: float, blocked: np.ndarray,
             kept.append(int(t))
     out = []
     for t in sorted(kept):
-        if any(abs(e["frame"] - t) <= reach and np.hypot(e["x"] - qx[t], e["y"] - qy[t]) <= near
-               for e in found):
+        cover = [e for e in found if e["kind"] != "echo" and abs(e["frame"] - t) <= reach
+                 and np.hypot(e["x"] - qx[t], e["y"] - qy[t]) <= near]
+        if any(e["kind"] != "step" or e["score"] >= pz[t] for e in cover):
             continue
+        for e in cover:
+            e["kind"] = "echo"
         out.append(dict(frame=t, frame_end=None, kind="step", score=float(pz[t]),
                         x=float(qx[t]), y=float(qy[t])))
     return out
