@@ -2,6 +2,7 @@
 
     python benchmarks/bench_false_alarms.py [--frames 120000] [--movie 2000]
                                             [--cases 32:5,32:40,96:12,96:250] [--seed 1]
+                                            [--patterns]
 
 Per case (SIDE:DOSE) one long event-free movie is generated: a textured scene (Gaussian-filtered
 noise, 12 % contrast) with Poisson counts at DOSE counts/px, slow beam wander (±3 % over 3,000
@@ -10,7 +11,8 @@ are then proposed from its features for every N as if the long movie were `--fra
 movies of `--movie` frames each: the threshold depends on N / frames only, so N per movie of
 `--movie` frames is N · frames / movie over the long one. Every candidate on these movies is a false
 alarm. Prints, per case and N: the expected count, the measured count, false alarms per movie and
-the ratio measured / N (target: within ×2, i.e. 0.5–2, at N = 0.05, 1 and 10).
+the ratio measured / N (target: within ×2, i.e. 0.5–2, at N = 0.05, 1 and 10). With --patterns the
+scan also runs the pattern test (`reviewer scan --patterns`).
 """
 
 from __future__ import annotations
@@ -53,6 +55,7 @@ def main() -> None:
     ap.add_argument("--movie", type=int, default=2000)
     ap.add_argument("--cases", default="32:5,32:40,96:12,96:250")
     ap.add_argument("--seed", type=int, default=1)
+    ap.add_argument("--patterns", action="store_true", help="scan with the pattern test too")
     a = ap.parse_args()
     scale = a.frames / a.movie
     print(f"{a.frames} event-free frames per case = {scale:.0f} movies of {a.movie} frames")
@@ -62,10 +65,11 @@ def main() -> None:
         side, dose = int(side), float(dose)
         frames = event_free(a.frames, side, dose, a.seed)
         t0 = time.perf_counter()
-        res = scan_movie(ArrayMovie(frames))
+        res = scan_movie(ArrayMovie(frames), DetectSettings(patterns=a.patterns))
         secs = time.perf_counter() - t0
         for n_fa in LEVELS:
-            c = propose(res.features, DetectSettings(false_alarms=n_fa * scale))
+            c = propose(res.features, DetectSettings(false_alarms=n_fa * scale,
+                                                     patterns=a.patterns))
             expected = n_fa * scale
             per_movie = len(c) / scale
             ratio = per_movie / n_fa

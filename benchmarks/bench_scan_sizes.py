@@ -2,6 +2,7 @@
 
     python benchmarks/bench_scan_sizes.py [--sizes 128:20000,512:1000,2048:300,4096:100]
                                           [--rounds 3] [--dir /tmp/reviewer_bench_sizes]
+                                          [--patterns]
 
 Per size (SIDE:FRAMES) a uint16 .npy movie is written once (Gaussian-approximated shot noise at
 20 counts/px on a textured scene, one dark patch appearing halfway). Then, alternating, --rounds
@@ -15,6 +16,8 @@ rounds of
   including the one-off noise calibration, included).
 The child samples its own /proc/self/status RssAnon every 5 ms (anonymous memory: the movie's
 memory-mapped pages are file-backed and do not count) and reports VmHWM too.
+With --patterns each round also times `reviewer scan --patterns` (the same way, right after the
+plain scan) and prints its row beside the plain one.
 Prints, per size: frames, raw-read s, readinto s, scan s, ratio scan/raw (median of rounds), the
 peak anonymous MB (max of rounds) and that each timed scan started from an empty cache.
 """
@@ -84,7 +87,7 @@ def status_kb(key: str) -> int:
     return 0
 
 
-def child(movie: str, out_csv: str) -> None:
+def child(movie: str, out_csv: str, *extra: str) -> None:
     """Runs in the fresh subprocess: one `reviewer scan`, timed, with sampled RssAnon. The modules
     the command imports lazily are imported before the clock starts (interpreter start-up and
     imports are not part of the scan)."""
@@ -110,7 +113,7 @@ def child(movie: str, out_csv: str) -> None:
     th = threading.Thread(target=sample, daemon=True)
     th.start()
     t0 = time.perf_counter()
-    code = main(["scan", movie, "--force", "-o", out_csv])
+    code = main(["scan", movie, "--force", "-o", out_csv, *extra])
     seconds = time.perf_counter() - t0
     stop.set()
     th.join()
@@ -120,11 +123,11 @@ def child(movie: str, out_csv: str) -> None:
                       "fresh": fresh}))
 
 
-def scan_once(path: Path) -> dict:
+def scan_once(path: Path, extra: tuple[str, ...] = ()) -> dict:
     with tempfile.TemporaryDirectory(prefix="bench_sizes_cache_") as cache:
         env = dict(os.environ, REVIEWER_CACHE_DIR=cache)
         csv = str(Path(cache) / "out.candidates.csv")
-        r = subprocess.run([sys.executable, __file__, "--child", str(path), csv], env=env,
+        r = subprocess.run([sys.executable, __file__, "--child", str(path), csv, *extra], env=env,
                            capture_output=True, text=True, check=False)
         lines = [ln for ln in r.stdout.splitlines() if ln.startswith("{")]
         if r.returncode or not lines:
@@ -137,10 +140,11 @@ def main() -> None:
     ap.add_argument("--sizes", default="128:20000,512:1000,2048:300,4096:100")
     ap.add_argument("--rounds", type=int, default=3)
     ap.add_argument("--dir", type=Path, default=Path("/tmp/reviewer_bench_sizes"))
+    ap.add_argument("--patterns", action="store_true", help="also time scan --patterns")
     ap.add_argument("--child", nargs=2, default=None, help=argparse.SUPPRESS)
     a = ap.parse_args()
     if a.child:
-        child(*a.child)
+        child(*a.child, *(("--patterns",) if a.patterns else ()))
         return
     a.dir.mkdir(parents=True, exist_ok=True)
     rows = []
@@ -150,28 +154,32 @@ def main() -> None:
         if not path.is_file():
             write(path, n, side)
         raw_pass(path)  # warm the page cache
-        raws, reads, scans, anon, hwm, fresh = [], [], [], [], [], []
+        variants = [(), ("--patterns",)] if a.patterns else [()]
+        raws, reads = [], []
+        runs = {v: [] for v in variants}
         for _ in range(a.rounds):
             raws.append(raw_pass(path))
             reads.append(readinto_pass(path))
-            r = scan_once(path)
-            scans.append(r["seconds"])
-            anon.append(r["anon_mb"])
-            hwm.append(r["hwm_mb"])
-            fresh.append(r["fresh"])
-        row = dict(side=side, frames=n, gb=path.stat().st_size / 1e9,
-                   raw_s=statistics.median(raws), readinto_s=statistics.median(reads),
-                   scan_s=statistics.median(scans),
-                   ratio=statistics.median(s / r for s, r in zip(scans, raws, strict=True)),
-                   ratio_readinto=statistics.median(s / r for s, r in zip(scans, reads,
-                                                                           strict=True)),
-                   peak_anon_mb=max(anon), vmhwm_mb=max(hwm), fresh_cache=all(fresh))
-        rows.append(row)
-        print(f"{side}x{side} x {n} frames ({row['gb']:.2f} GB): raw {row['raw_s']:.2f} s, "
-              f"readinto {row['readinto_s']:.2f} s, scan {row['scan_s']:.2f} s, "
-              f"ratio {row['ratio']:.2f} (to readinto {row['ratio_readinto']:.2f}), "
-              f"peak anon {row['peak_anon_mb']:.0f} MB (VmHWM {row['vmhwm_mb']:.0f} MB), "
-              f"fresh cache {row['fresh_cache']}", flush=True)
+            for v in variants:
+                runs[v].append(scan_once(path, v))
+        for v in variants:
+            scans = [r["seconds"] for r in runs[v]]
+            row = dict(side=side, frames=n, gb=path.stat().st_size / 1e9, options=" ".join(v),
+                       raw_s=statistics.median(raws), readinto_s=statistics.median(reads),
+                       scan_s=statistics.median(scans),
+                       ratio=statistics.median(s / r for s, r in zip(scans, raws, strict=True)),
+                       ratio_readinto=statistics.median(s / r for s, r in zip(scans, reads,
+                                                                               strict=True)),
+                       peak_anon_mb=max(r["anon_mb"] for r in runs[v]),
+                       vmhwm_mb=max(r["hwm_mb"] for r in runs[v]),
+                       fresh_cache=all(r["fresh"] for r in runs[v]))
+            rows.append(row)
+            print(f"{side}x{side} x {n} frames ({row['gb']:.2f} GB) {row['options'] or 'scan'}: "
+                  f"raw {row['raw_s']:.2f} s, "
+                  f"readinto {row['readinto_s']:.2f} s, scan {row['scan_s']:.2f} s, "
+                  f"ratio {row['ratio']:.2f} (to readinto {row['ratio_readinto']:.2f}), "
+                  f"peak anon {row['peak_anon_mb']:.0f} MB (VmHWM {row['vmhwm_mb']:.0f} MB), "
+                  f"fresh cache {row['fresh_cache']}", flush=True)
     print("targets: ratio <= 3 at 128, 512, 2048; peak anonymous memory <= 500 MB at every size")
 
 

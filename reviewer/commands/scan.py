@@ -34,6 +34,10 @@ def register(subparsers) -> None:
                    help="also read each region through its edges: finds sub-pixel advances of dim "
                         "fronts at very low dose, at 2-3x the scan time for frames up to 512²; "
                         "one process only (not with --workers / --scheduler)")
+    p.add_argument("--patterns", action="store_true",
+                   help="also test each region for changes of pattern that keep its mean (a lattice "
+                        "patch that turns, fringes that shift), on 2x2-binned frames: several "
+                        "times the scan time; one process only (not with --workers / --scheduler)")
     p.add_argument("--force", action="store_true", help="scan again even if a cached scan exists")
     split = p.add_mutually_exclusive_group()
     split.add_argument("--workers", type=int, default=None, metavar="N",
@@ -125,11 +129,13 @@ def run(args: argparse.Namespace) -> int:
     from reviewer.store.table import write_csv
 
     settings = DetectSettings(sensitivity=args.sensitivity, false_alarms=args.false_alarms,
-                              fronts=args.dim_fronts)
+                              fronts=args.dim_fronts, patterns=args.patterns)
     if args.workers is not None and args.workers < 1:
         raise BadInput(f"--workers {args.workers}: 1 or more")
     if args.dim_fronts and (args.workers is not None or args.scheduler is not None):
         raise BadInput("--dim-fronts scans in one process: leave out --workers / --scheduler")
+    if args.patterns and (args.workers is not None or args.scheduler is not None):
+        raise BadInput("--patterns scans in one process: leave out --workers / --scheduler")
     movie = open_checked(args)
     try:
         cache = _cache_folder(movie.fingerprint)

@@ -6,6 +6,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from reviewer.detect.pattern import PATTERN_SHARE, pattern_events
 from reviewer.detect.settings import DetectSettings
 from reviewer.detect.statistics import raw_level, threshold_z
 
@@ -246,6 +247,8 @@ def propose(features: dict[str, np.ndarray], settings: DetectSettings | None = N
                  x=np.nan, y=np.nan, cause=g["cause"]) for g in glob]
     local = local_events(f, s, z_thr, blocked)
     pulses = pulse_events(f, s, z_thr, blocked, local)
+    pulses += pattern_events(f, threshold_for(s, n, PATTERN_SHARE), blocked, local + pulses,
+                             s.separation, 4.0 * s.tile)  # pattern changes (pattern.py)
     for e in local + pulses:
         if e["kind"] != "echo":
             rows.append({k: e[k] for k in ("frame", "frame_end", "kind", "score", "x", "y")}

@@ -37,15 +37,18 @@ class DetectSettings:
     transient_max: int = 60      # frames: longest appear-and-leave pairing
     shoulder: float = 0.25       # a peak below this share of a stronger one nearby is its echo
     fronts: bool = False         # also read each tile through its edges (fronts.py; scan --dim-fronts)
+    patterns: bool = False       # also test changes of pattern at 2x2 bins (pattern.py; scan --patterns)
+    pattern_window: int = 8      # frames before/after for the pattern test
 
-    SCAN_KEYS = ("tile", "windows", "outer", "read_block", "chunk", "blank_level", "fronts")
+    SCAN_KEYS = ("tile", "windows", "outer", "read_block", "chunk", "blank_level", "fronts",
+                 "patterns", "pattern_window")
 
     def __post_init__(self) -> None:
         if not self.sensitivity > 0:
             raise BadInput(f"sensitivity: must be a positive number, got {self.sensitivity}")
         if not (self.false_alarms > 0 and np.isfinite(self.false_alarms)):
             raise BadInput(f"false alarms: must be a positive number, got {self.false_alarms}")
-        if self.tile < 2 or any(w < 1 for w in self.windows):
+        if self.tile < 2 or any(w < 1 for w in self.windows) or self.pattern_window < 1:
             raise BadInput("detector settings: tile must be >= 2 and windows >= 1")
 
     def to_dict(self) -> dict:

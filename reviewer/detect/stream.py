@@ -14,6 +14,7 @@ import pandas as pd
 
 from reviewer.detect import fronts as fr
 from reviewer.detect.drift import explained_shift, phase_shift
+from reviewer.detect.pattern import PatternTrack
 from reviewer.detect.pulse import null_pulse_tests, pulse_chunk
 from reviewer.detect.readahead import read_ahead
 from reviewer.detect.reduce import Scratch, bin_block
@@ -81,6 +82,9 @@ class _Scanner:
         self.fronts = fr.FrontDelay(self.gy, self.gx, self.tile, self.front_b, reach) \
             if self.front_b and reach <= self.ctx else None
         self.fbuf = np.empty((cap, 2, self.gy, self.gx), np.float32) if self.fronts else None
+        # pattern changes (pattern.py): binned frames, its own per-frame features
+        self.pattern = PatternTrack(n, tuple(shape), s.pattern_window, self._alloc) \
+            if s.patterns else None
         self.fill = 0          # rows of buf in use
         self.base = 0          # absolute index of buffer row 0
         self.scored = 0        # frames scored so far
@@ -128,9 +132,17 @@ class _Scanner:
         With the front statistic on: the finished epochs' (start, tiles, front values) (blocks
         must then come in order)."""
         masked = block.dtype.kind in "fc" and not np.isfinite(block).all()
+        finite = None
         if masked:
             tiles = self._masked(block)
-            block = np.where(np.isfinite(block), block, 0)
+            finite = np.isfinite(block)
+            block = np.where(finite, block, 0)
+        pt = self.pattern
+        bins = pt.push(block, finite) if pt is not None else None
+        if masked:
+            pass
+        elif bins is not None and self.fronts is None and self.tile % pt.b == 0:
+            tiles = bin_block(bins, self.tile // pt.b, self.gy, self.gx)  # sums of those bins
         elif self.fronts is None or self.front_b == 1:
             tiles = bin_block(block, self.tile, self.gy, self.gx)
         if self.fronts is None:
@@ -321,6 +333,8 @@ class _Scanner:
         return float(np.partition(r, len(r) // 2)[len(r) // 2])
 
     def finish(self) -> None:
+        if self.pattern is not None:
+            self.pattern.flush()
         for s0, t, front in self.fronts.flush() if self.fronts is not None else []:
             self._feed_rows(s0, t, front)
         end = self.base + self.fill
@@ -415,6 +429,10 @@ class _Scanner:
         f["gstep"][:] = np.exp(t / (1.0 - c)) - 1.0
         f["gz"] = self._alloc("gz", self.n, np.float32)
         f["gz"][:] = t / max(sd * factor, 1e-9)
+        if self.pattern is not None:
+            pt = self.pattern
+            f.update(qmax=pt.qmax, qarg=pt.qarg, qmed=pt.qmed, qmodel=pt.model)
+            f.update(pt.features(self._alloc, self._scalar))
         for a in f.values():
             if isinstance(a, np.memmap):
                 a.flush()
