@@ -86,13 +86,20 @@ def status_kb(key: str) -> int:
 
 def child(movie: str, out_csv: str) -> None:
     """Runs in the fresh subprocess: one `reviewer scan`, timed, with sampled RssAnon. The modules
-    the command imports lazily are imported before the clock starts (interpreter start-up and
-    imports are not part of the scan)."""
+    the command imports lazily (the movie readers among them) are imported before the clock starts
+    (interpreter start-up and imports are not part of the scan; with PYTHONDONTWRITEBYTECODE set
+    they are compiled on every start)."""
     import pandas  # noqa: F401
+    import pandas.io.formats.csvs  # noqa: F401
     import scipy.special  # noqa: F401
+    import tifffile  # noqa: F401
 
     import reviewer.commands.scan  # noqa: F401
     import reviewer.detect  # noqa: F401
+    import reviewer.movie  # noqa: F401
+    import reviewer.paths  # noqa: F401
+    import reviewer.progress  # noqa: F401
+    import reviewer.store.events  # noqa: F401
     import reviewer.store.table  # noqa: F401
     from reviewer.cli import main
 
