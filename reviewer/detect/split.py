@@ -27,14 +27,13 @@ from pathlib import Path
 import numpy as np
 
 from reviewer.detect.drift import phase_shift
-from reviewer.detect.readahead import read_ahead
 from reviewer.detect.settings import DetectSettings
 from reviewer.detect.stream import (
     DRIFT_EVERY,
     NEW_FEATURES,
-    ScanCancelled,
     _Scanner,
     block_frames,
+    fed_blocks,
 )
 from reviewer.errors import BadInput
 
@@ -68,6 +67,7 @@ class _Frames:
 
     def __init__(self, movie, start: int, stop: int) -> None:
         self.movie, self.start, self.stop = movie, start, stop
+        self.shape, self.dtype = movie.shape, movie.dtype
 
     def iter_blocks(self, size: int, reuse: bool = False):
         first = self.start // size * size
@@ -132,18 +132,15 @@ def _run(sc: _Scanner, frames: _Frames, per: int, cancel=None, progress=None) ->
     """Feed every block of `frames` to sc (progress gets the number of frames just read); returns
     the first drift window's mean image."""
     first = None
-    blocks = read_ahead(frames, per, sc.reduce)
+    loop = fed_blocks(sc, frames, per, cancel, origin=frames.start)
     try:
-        for start, tiles in blocks:
-            if cancel is not None and cancel.is_set():
-                raise ScanCancelled("scan cancelled")
-            sc.feed(start, tiles)
+        for _, count in loop:
             if first is None and sc.prev_mean is not None:
                 first = sc.prev_mean.copy()
             if progress is not None:
-                progress(len(tiles))
+                progress(count)
     finally:
-        blocks.close()
+        loop.close()
     return first
 
 

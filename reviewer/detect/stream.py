@@ -5,7 +5,7 @@ from __future__ import annotations
 
 import shutil
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -15,7 +15,7 @@ import pandas as pd
 from reviewer.detect import fronts as fr
 from reviewer.detect.drift import explained_shift, phase_shift
 from reviewer.detect.pulse import null_pulse_tests, pulse_chunk
-from reviewer.detect.readahead import read_ahead
+from reviewer.detect.readahead import piece_frames, read_ahead
 from reviewer.detect.reduce import Scratch, bin_block
 from reviewer.detect.scoring import noise_gain, noise_sd, score_bands
 from reviewer.detect.settings import DetectSettings
@@ -433,11 +433,32 @@ CHUNK_CELLS = 1 << 22  # tile values scored at a time (frames × tiles), at leas
 LARGE_GRID = 1 << 15  # tiles per frame above which context rows are kept to the minimum
 
 
+def _frame_bytes(movie) -> int:
+    return movie.shape[0] * movie.shape[1] * np.dtype(movie.dtype).itemsize
+
+
 def block_frames(movie, s: DetectSettings) -> int:
     """Frames per read: settings.read_block, fewer when the frames are large (a 2k×2k uint16 frame
     is 8 MiB, so 64 of them decoded at once would be 512 MiB)."""
-    frame_bytes = movie.shape[0] * movie.shape[1] * np.dtype(movie.dtype).itemsize
-    return max(1, min(s.read_block, BLOCK_BYTES // max(frame_bytes, 1)))
+    return max(1, min(s.read_block, BLOCK_BYTES // max(_frame_bytes(movie), 1)))
+
+
+def fed_blocks(sc: _Scanner, movie, per: int, cancel=None,
+               origin: int = 0) -> Iterator[tuple[int, int]]:
+    """The one read-ahead -> feed loop (whole scans here, parts in split.py): every block of `per`
+    frames of `movie` read and reduced in the reader thread, in pieces (readahead.piece_frames),
+    and fed to `sc` in order; yields (start, frames) after each block is fed. Raises ScanCancelled
+    once `cancel` is set; the reader has stopped when the loop ends, however it ends."""
+    blocks = read_ahead(movie, per, sc.reduce, piece=piece_frames(per, _frame_bytes(movie)),
+                        origin=origin)
+    try:
+        for start, frames, tiles in blocks:
+            if cancel is not None and cancel.is_set():
+                raise ScanCancelled("scan cancelled")
+            sc.feed(start, tiles)
+            yield start, frames
+    finally:
+        blocks.close()
 
 
 def compute_features(movie, settings: DetectSettings | None = None,
@@ -457,16 +478,13 @@ def compute_features(movie, settings: DetectSettings | None = None,
         shutil.rmtree(work, ignore_errors=True)
         work.mkdir(parents=True)
     sc = _Scanner(movie.n_frames, tuple(movie.shape), s, str(movie.path), per, work)
-    blocks = read_ahead(movie, per, sc.reduce)
+    loop = fed_blocks(sc, movie, per, cancel)
     try:
-        for start, tiles in blocks:
-            if cancel is not None and cancel.is_set():
-                raise ScanCancelled("scan cancelled")
-            sc.feed(start, tiles)
+        for start, frames in loop:
             if progress is not None:
-                progress(start + len(tiles))
+                progress(start + frames)
     finally:
-        blocks.close()  # the reader thread has stopped when this returns
+        loop.close()  # the reader thread has stopped when this returns
     sc.finish()
     features, meta = sc.features()
     meta.update(shape=list(movie.shape), seconds=round(time.perf_counter() - t0, 3),
