@@ -2,6 +2,7 @@
 
     python benchmarks/bench_scan_sizes.py [--sizes 128:20000,512:1000,2048:300,4096:100]
                                           [--rounds 3] [--dir /tmp/reviewer_bench_sizes]
+                                          [--scan-args '--dim-fronts']
 
 Per size (SIDE:FRAMES) a uint16 .npy movie is written once (Gaussian-approximated shot noise at
 20 counts/px on a textured scene, one dark patch appearing halfway). Then, alternating, --rounds
@@ -16,7 +17,9 @@ rounds of
 The child samples its own /proc/self/status RssAnon every 5 ms (anonymous memory: the movie's
 memory-mapped pages are file-backed and do not count) and reports VmHWM too.
 Prints, per size: frames, raw-read s, readinto s, scan s, ratio scan/raw (median of rounds), the
-peak anonymous MB (max of rounds) and that each timed scan started from an empty cache.
+scan's CPU time (all its threads) over the raw read (what the ratio would be on one free core: on a
+shared machine the wall-time ratio moves with the other load), the peak anonymous MB (max of
+rounds) and that each timed scan started from an empty cache.
 """
 
 from __future__ import annotations
@@ -84,7 +87,7 @@ def status_kb(key: str) -> int:
     return 0
 
 
-def child(movie: str, out_csv: str) -> None:
+def child(movie: str, out_csv: str, *extra: str) -> None:
     """Runs in the fresh subprocess: one `reviewer scan`, timed, with sampled RssAnon. The modules
     the command imports lazily (the movie readers among them) are imported before the clock starts
     (interpreter start-up and imports are not part of the scan; with PYTHONDONTWRITEBYTECODE set
@@ -116,22 +119,22 @@ def child(movie: str, out_csv: str) -> None:
 
     th = threading.Thread(target=sample, daemon=True)
     th.start()
-    t0 = time.perf_counter()
-    code = main(["scan", movie, "--force", "-o", out_csv])
-    seconds = time.perf_counter() - t0
+    t0, c0 = time.perf_counter(), time.process_time()
+    code = main(["scan", movie, "--force", "-o", out_csv, *extra])
+    seconds, cpu = time.perf_counter() - t0, time.process_time() - c0
     stop.set()
     th.join()
     peak[0] = max(peak[0], status_kb("RssAnon"))
-    print(json.dumps({"code": code, "seconds": seconds, "anon_mb": peak[0] / 1024,
+    print(json.dumps({"code": code, "seconds": seconds, "cpu": cpu, "anon_mb": peak[0] / 1024,
                       "base_mb": base / 1024, "hwm_mb": status_kb("VmHWM") / 1024,
                       "fresh": fresh}))
 
 
-def scan_once(path: Path) -> dict:
+def scan_once(path: Path, extra: list[str]) -> dict:
     with tempfile.TemporaryDirectory(prefix="bench_sizes_cache_") as cache:
         env = dict(os.environ, REVIEWER_CACHE_DIR=cache)
         csv = str(Path(cache) / "out.candidates.csv")
-        r = subprocess.run([sys.executable, __file__, "--child", str(path), csv], env=env,
+        r = subprocess.run([sys.executable, __file__, "--child", str(path), csv, *extra], env=env,
                            capture_output=True, text=True, check=False)
         lines = [ln for ln in r.stdout.splitlines() if ln.startswith("{")]
         if r.returncode or not lines:
@@ -144,11 +147,14 @@ def main() -> None:
     ap.add_argument("--sizes", default="128:20000,512:1000,2048:300,4096:100")
     ap.add_argument("--rounds", type=int, default=3)
     ap.add_argument("--dir", type=Path, default=Path("/tmp/reviewer_bench_sizes"))
-    ap.add_argument("--child", nargs=2, default=None, help=argparse.SUPPRESS)
+    ap.add_argument("--scan-args", default="", metavar="ARGS",
+                    help="more arguments for reviewer scan, e.g. '--dim-fronts'")
+    ap.add_argument("--child", nargs="+", default=None, help=argparse.SUPPRESS)
     a = ap.parse_args()
     if a.child:
         child(*a.child)
         return
+    extra = a.scan_args.split()
     a.dir.mkdir(parents=True, exist_ok=True)
     rows = []
     for spec in a.sizes.split(","):
@@ -157,12 +163,13 @@ def main() -> None:
         if not path.is_file():
             write(path, n, side)
         raw_pass(path)  # warm the page cache
-        raws, reads, scans, anon, hwm, fresh = [], [], [], [], [], []
+        raws, reads, scans, cpus, anon, hwm, fresh = [], [], [], [], [], [], []
         for _ in range(a.rounds):
             raws.append(raw_pass(path))
             reads.append(readinto_pass(path))
-            r = scan_once(path)
+            r = scan_once(path, extra)
             scans.append(r["seconds"])
+            cpus.append(r["cpu"])
             anon.append(r["anon_mb"])
             hwm.append(r["hwm_mb"])
             fresh.append(r["fresh"])
@@ -170,13 +177,15 @@ def main() -> None:
                    raw_s=statistics.median(raws), readinto_s=statistics.median(reads),
                    scan_s=statistics.median(scans),
                    ratio=statistics.median(s / r for s, r in zip(scans, raws, strict=True)),
+                   cpu_ratio=statistics.median(c / r for c, r in zip(cpus, raws, strict=True)),
                    ratio_readinto=statistics.median(s / r for s, r in zip(scans, reads,
                                                                            strict=True)),
                    peak_anon_mb=max(anon), vmhwm_mb=max(hwm), fresh_cache=all(fresh))
         rows.append(row)
         print(f"{side}x{side} x {n} frames ({row['gb']:.2f} GB): raw {row['raw_s']:.2f} s, "
               f"readinto {row['readinto_s']:.2f} s, scan {row['scan_s']:.2f} s, "
-              f"ratio {row['ratio']:.2f} (to readinto {row['ratio_readinto']:.2f}), "
+              f"ratio {row['ratio']:.2f} (to readinto {row['ratio_readinto']:.2f}; CPU time "
+              f"{row['cpu_ratio']:.2f}), "
               f"peak anon {row['peak_anon_mb']:.0f} MB (VmHWM {row['vmhwm_mb']:.0f} MB), "
               f"fresh cache {row['fresh_cache']}", flush=True)
     print("targets: ratio <= 3 at 128, 512, 2048; peak anonymous memory <= 500 MB at every size")
