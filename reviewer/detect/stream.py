@@ -90,6 +90,7 @@ class _Scanner:
         self.ref_total = 0.0
         self.gain: float | None = None
         self.scratch = Scratch()
+        self.read_scratch = Scratch()  # reduce()'s, in the reader thread
         self.k_medians: list[float] = []
         self.prev_mean: np.ndarray | None = None
         self.drift = np.zeros(2)
@@ -138,8 +139,9 @@ class _Scanner:
         b = self.front_b
         if b == 1:
             images = block  # copied by the front delay
-        else:  # binned once; the tile sums are sums of those bins
-            images = bin_block(block, b, block.shape[1] // b, block.shape[2] // b)
+        else:  # binned once (into the reader's reused buffers); tile sums: sums of those bins
+            images = bin_block(block, b, block.shape[1] // b, block.shape[2] // b,
+                               self.read_scratch)
             if not masked:
                 tiles = bin_block(images, self.tile // b, self.gy, self.gx)
         # the epochs' templates and projections run here, in the reader thread (reduce is
