@@ -2,7 +2,7 @@
 
     python benchmarks/bench_scan_sizes.py [--sizes 128:20000,512:1000,2048:300,4096:100]
                                           [--rounds 3] [--dir /tmp/reviewer_bench_sizes]
-                                          [--scan-args '--dim-fronts']
+                                          [--scan-args='--dim-fronts']
 
 Per size (SIDE:FRAMES) a uint16 .npy movie is written once (Gaussian-approximated shot noise at
 20 counts/px on a textured scene, one dark patch appearing halfway). Then, alternating, --rounds
@@ -134,7 +134,8 @@ def scan_once(path: Path, extra: list[str]) -> dict:
     with tempfile.TemporaryDirectory(prefix="bench_sizes_cache_") as cache:
         env = dict(os.environ, REVIEWER_CACHE_DIR=cache)
         csv = str(Path(cache) / "out.candidates.csv")
-        r = subprocess.run([sys.executable, __file__, "--child", str(path), csv, *extra], env=env,
+        r = subprocess.run([sys.executable, __file__, "--child", str(path), csv,
+                            f"--scan-args={' '.join(extra)}"], env=env,
                            capture_output=True, text=True, check=False)
         lines = [ln for ln in r.stdout.splitlines() if ln.startswith("{")]
         if r.returncode or not lines:
@@ -148,13 +149,13 @@ def main() -> None:
     ap.add_argument("--rounds", type=int, default=3)
     ap.add_argument("--dir", type=Path, default=Path("/tmp/reviewer_bench_sizes"))
     ap.add_argument("--scan-args", default="", metavar="ARGS",
-                    help="more arguments for reviewer scan, e.g. '--dim-fronts'")
-    ap.add_argument("--child", nargs="+", default=None, help=argparse.SUPPRESS)
+                    help="more arguments for reviewer scan, e.g. --scan-args=--dim-fronts")
+    ap.add_argument("--child", nargs=2, default=None, help=argparse.SUPPRESS)
     a = ap.parse_args()
-    if a.child:
-        child(*a.child)
-        return
     extra = a.scan_args.split()
+    if a.child:
+        child(*a.child, *extra)
+        return
     a.dir.mkdir(parents=True, exist_ok=True)
     rows = []
     for spec in a.sizes.split(","):
