@@ -447,14 +447,26 @@ def block_frames(movie, s: DetectSettings) -> int:
     return max(1, min(s.read_block, BLOCK_BYTES // max(_frame_bytes(movie), 1)))
 
 
+def _piece(movie, per: int) -> int:
+    """Frames per read within a block: pieces (readahead.piece_frames) for readers whose reads cost
+    the same in any size (positioned reads of plain bytes, arrays in memory); whole blocks for the
+    others (an HDF5 or Zarr chunk is decoded again for every read that touches it)."""
+    from reviewer.movie.base import ArrayMovie
+    from reviewer.movie.offsets import OffsetMovie
+
+    source = getattr(movie, "movie", movie)  # split.py's _Frames reads through to its movie
+    if isinstance(source, OffsetMovie | ArrayMovie):
+        return piece_frames(per, _frame_bytes(movie))
+    return per
+
+
 def fed_blocks(sc: _Scanner, movie, per: int, cancel=None,
                origin: int = 0) -> Iterator[tuple[int, int]]:
     """The one read-ahead -> feed loop (whole scans here, parts in split.py): every block of `per`
-    frames of `movie` read and reduced in the reader thread, in pieces (readahead.piece_frames),
+    frames of `movie` read and reduced in the reader thread, in pieces where that pays (_piece),
     and fed to `sc` in order; yields (start, frames) after each block is fed. Raises ScanCancelled
     once `cancel` is set; the reader has stopped when the loop ends, however it ends."""
-    blocks = read_ahead(movie, per, sc.reduce, piece=piece_frames(per, _frame_bytes(movie)),
-                        origin=origin)
+    blocks = read_ahead(movie, per, sc.reduce, piece=_piece(movie, per), origin=origin)
     try:
         for start, frames, tiles in blocks:
             if cancel is not None and cancel.is_set():
