@@ -83,6 +83,7 @@ class _Scanner:
         self.fbuf = np.empty((cap, 2, self.gy, self.gx), np.float32) if self.fronts else None
         self.fill = 0          # rows of buf in use
         self.base = 0          # absolute index of buffer row 0
+        self.origin = 0        # the movie's frame number of row 0 (a split part's: its first row)
         self.scored = 0        # frames scored so far
         self.recent = np.zeros(64)
         self.n_recent = 0
@@ -154,15 +155,25 @@ class _Scanner:
         if self.fronts is None:
             self._feed_rows(start, tiles, None)
             return
-        for s0, t, front in tiles:
-            self._feed_rows(s0, t, front)
+        self._feed_epochs(tiles)
+
+    def _feed_epochs(self, epochs: list[tuple]) -> None:
+        """The front delay's finished epochs (numbered in movie frames), rows before this
+        scanner's first (origin: a split part's warm-up epochs) left out."""
+        for s0, t, front in epochs:
+            r = s0 - self.origin
+            if r + len(t) <= 0:
+                continue
+            if r < 0:
+                t, front, r = t[-r:], front[-r:], 0
+            self._feed_rows(r, t, front)
 
     def _aligned(self, upto: int) -> int:
         """With fronts, chunks end on a template boundary where they can (whole segments)."""
         fd = self.fronts
         if fd is None:
             return upto
-        a = fd.reach + (upto - fd.reach) // fd.epoch * fd.epoch
+        a = fd.reach + (upto + self.origin - fd.reach) // fd.epoch * fd.epoch - self.origin
         return a if a > self.scored else upto
 
     def _feed_rows(self, start: int, tiles: np.ndarray, front: np.ndarray | None) -> None:
@@ -282,17 +293,17 @@ class _Scanner:
     def _front_scores(self, cs, upto: int) -> None:
         """Score the front values of frames scored..upto-1, one template segment at a time, and
         keep per frame whichever statistic (tile sums or fronts) is stronger."""
-        fd, s = self.fronts, self.s
+        fd, s, o = self.fronts, self.s, self.origin  # epochs count movie frames
         first = next((k for k, w in enumerate(s.windows) if w >= fr.FRONT_MIN_W), 0)
-        for e in range(fd.scoring_epoch(self.scored), fd.scoring_epoch(upto - 1) + 1):
-            s0 = max(self.scored, e * fd.epoch + fd.reach if e else 0)
-            s1 = min(upto, (e + 1) * fd.epoch + fd.reach)
+        for e in range(fd.scoring_epoch(self.scored + o), fd.scoring_epoch(upto - 1 + o) + 1):
+            s0 = max(self.scored, (e * fd.epoch + fd.reach if e else 0) - o)
+            s1 = min(upto, (e + 1) * fd.epoch + fd.reach - o)
             if s1 <= s0 or e in fd.empty or e + 1 in fd.empty:
                 continue
             r0 = max(0, s0 - self.base - self.ctx)
             r1 = min(self.fill, s1 - self.base + self.ctx)
             ser = fd.detrend(fd.series(self.fbuf[r0:r1, 0], self.fbuf[r0:r1, 1],
-                                       self.base + r0, e))
+                                       self.base + r0 + o, e))
             # the long windows only: a dim front needs them, and a change the short window sees
             # is strong enough for the tile sums
             fs = score_bands(ser, s0 - self.base - r0, s1 - self.base - r0, s.windows[first:],
@@ -323,8 +334,8 @@ class _Scanner:
         return float(np.partition(r, len(r) // 2)[len(r) // 2])
 
     def finish(self) -> None:
-        for s0, t, front in self.fronts.flush() if self.fronts is not None else []:
-            self._feed_rows(s0, t, front)
+        if self.fronts is not None:
+            self._feed_epochs(self.fronts.flush())
         end = self.base + self.fill
         if end > self.scored:
             self._score(end)
@@ -335,13 +346,21 @@ class _Scanner:
         return {"ref_total": self.ref_total, "ref0": self.ref0, "gain": self.gain,
                 "recent": self.recent.tolist(), "n_recent": self.n_recent}
 
-    def adopt(self, model: dict, context: int) -> None:
+    def adopt(self, model: dict, context: int, origin: int = 0, fed_from: int | None = None) -> None:
         """Scan as a later part of a split movie: take `model` (noise_model()) instead of measuring
-        it, and treat the first `context` rows fed as context only (never scored themselves)."""
+        it, and treat the first `context` rows fed as context only (never scored themselves).
+        `origin`: the movie's frame number of row 0; `fed_from`: the first frame reduce() gets,
+        before it when the front statistic's templates need earlier whole epochs (those rows are
+        left out of the buffer)."""
         self.ref_total, self.ref0, self.gain = model["ref_total"], model["ref0"], model["gain"]
         self.recent[:] = model["recent"]
         self.n_recent = model["n_recent"]
         self.scored = context
+        self.origin = origin
+        if self.fronts is not None:
+            fd = self.fronts
+            self.fronts = fr.FrontDelay(self.gy, self.gx, self.tile, self.front_b, fd.reach,
+                                        origin if fed_from is None else fed_from)
 
     def _score(self, upto: int) -> None:
         self._normalise()
