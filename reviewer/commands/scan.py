@@ -32,7 +32,7 @@ def register(subparsers) -> None:
                         "--false-alarms (default 1)")
     p.add_argument("--dim-fronts", action="store_true",
                    help="also read each region through its edges: finds sub-pixel advances of dim "
-                        "fronts at very low dose, at about 2x the scan time for frames up to 512²")
+                        "fronts at very low dose, at 2-2.5x the scan time for frames up to 512²")
     p.add_argument("--force", action="store_true", help="scan again even if a cached scan exists")
     split = p.add_mutually_exclusive_group()
     split.add_argument("--workers", type=int, default=None, metavar="N",
