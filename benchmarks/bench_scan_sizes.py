@@ -2,7 +2,7 @@
 
     python benchmarks/bench_scan_sizes.py [--sizes 128:20000,512:1000,2048:300,4096:100]
                                           [--rounds 3] [--dir /tmp/reviewer_bench_sizes]
-                                          [--patterns]
+                                          [--scan-args='--dim-fronts'] [--patterns]
 
 Per size (SIDE:FRAMES) a uint16 .npy movie is written once (Gaussian-approximated shot noise at
 20 counts/px on a textured scene, one dark patch appearing halfway). Then, alternating, --rounds
@@ -19,7 +19,9 @@ memory-mapped pages are file-backed and do not count) and reports VmHWM too.
 With --patterns each round also times `reviewer scan --patterns` (the same way, right after the
 plain scan) and prints its row beside the plain one.
 Prints, per size: frames, raw-read s, readinto s, scan s, ratio scan/raw (median of rounds), the
-peak anonymous MB (max of rounds) and that each timed scan started from an empty cache.
+scan's CPU time (all its threads) over the raw read (what the ratio would be on one free core: on a
+shared machine the wall-time ratio moves with the other load), the peak anonymous MB (max of
+rounds) and that each timed scan started from an empty cache.
 """
 
 from __future__ import annotations
@@ -89,13 +91,20 @@ def status_kb(key: str) -> int:
 
 def child(movie: str, out_csv: str, *extra: str) -> None:
     """Runs in the fresh subprocess: one `reviewer scan`, timed, with sampled RssAnon. The modules
-    the command imports lazily are imported before the clock starts (interpreter start-up and
-    imports are not part of the scan)."""
+    the command imports lazily (the movie readers among them) are imported before the clock starts
+    (interpreter start-up and imports are not part of the scan; with PYTHONDONTWRITEBYTECODE set
+    they are compiled on every start)."""
     import pandas  # noqa: F401
+    import pandas.io.formats.csvs  # noqa: F401
     import scipy.special  # noqa: F401
+    import tifffile  # noqa: F401
 
     import reviewer.commands.scan  # noqa: F401
     import reviewer.detect  # noqa: F401
+    import reviewer.movie  # noqa: F401
+    import reviewer.paths  # noqa: F401
+    import reviewer.progress  # noqa: F401
+    import reviewer.store.events  # noqa: F401
     import reviewer.store.table  # noqa: F401
     from reviewer.cli import main
 
@@ -112,22 +121,23 @@ def child(movie: str, out_csv: str, *extra: str) -> None:
 
     th = threading.Thread(target=sample, daemon=True)
     th.start()
-    t0 = time.perf_counter()
+    t0, c0 = time.perf_counter(), time.process_time()
     code = main(["scan", movie, "--force", "-o", out_csv, *extra])
-    seconds = time.perf_counter() - t0
+    seconds, cpu = time.perf_counter() - t0, time.process_time() - c0
     stop.set()
     th.join()
     peak[0] = max(peak[0], status_kb("RssAnon"))
-    print(json.dumps({"code": code, "seconds": seconds, "anon_mb": peak[0] / 1024,
+    print(json.dumps({"code": code, "seconds": seconds, "cpu": cpu, "anon_mb": peak[0] / 1024,
                       "base_mb": base / 1024, "hwm_mb": status_kb("VmHWM") / 1024,
                       "fresh": fresh}))
 
 
-def scan_once(path: Path, extra: tuple[str, ...] = ()) -> dict:
+def scan_once(path: Path, extra: list[str]) -> dict:
     with tempfile.TemporaryDirectory(prefix="bench_sizes_cache_") as cache:
         env = dict(os.environ, REVIEWER_CACHE_DIR=cache)
         csv = str(Path(cache) / "out.candidates.csv")
-        r = subprocess.run([sys.executable, __file__, "--child", str(path), csv, *extra], env=env,
+        r = subprocess.run([sys.executable, __file__, "--child", str(path), csv,
+                            f"--scan-args={' '.join(extra)}"], env=env,
                            capture_output=True, text=True, check=False)
         lines = [ln for ln in r.stdout.splitlines() if ln.startswith("{")]
         if r.returncode or not lines:
@@ -140,11 +150,14 @@ def main() -> None:
     ap.add_argument("--sizes", default="128:20000,512:1000,2048:300,4096:100")
     ap.add_argument("--rounds", type=int, default=3)
     ap.add_argument("--dir", type=Path, default=Path("/tmp/reviewer_bench_sizes"))
+    ap.add_argument("--scan-args", default="", metavar="ARGS",
+                    help="more arguments for reviewer scan, e.g. --scan-args=--dim-fronts")
     ap.add_argument("--patterns", action="store_true", help="also time scan --patterns")
     ap.add_argument("--child", nargs=2, default=None, help=argparse.SUPPRESS)
     a = ap.parse_args()
+    extra = a.scan_args.split()
     if a.child:
-        child(*a.child, *(("--patterns",) if a.patterns else ()))
+        child(*a.child, *extra)
         return
     a.dir.mkdir(parents=True, exist_ok=True)
     rows = []
@@ -154,30 +167,33 @@ def main() -> None:
         if not path.is_file():
             write(path, n, side)
         raw_pass(path)  # warm the page cache
-        variants = [(), ("--patterns",)] if a.patterns else [()]
+        variants = [extra, [*extra, "--patterns"]] if a.patterns else [extra]
         raws, reads = [], []
-        runs = {v: [] for v in variants}
+        runs: list[list[dict]] = [[] for _ in variants]
         for _ in range(a.rounds):
             raws.append(raw_pass(path))
             reads.append(readinto_pass(path))
-            for v in variants:
-                runs[v].append(scan_once(path, v))
-        for v in variants:
-            scans = [r["seconds"] for r in runs[v]]
+            for v, got in zip(variants, runs, strict=True):
+                got.append(scan_once(path, v))
+        for v, got in zip(variants, runs, strict=True):
+            scans = [r["seconds"] for r in got]
+            cpus = [r["cpu"] for r in got]
             row = dict(side=side, frames=n, gb=path.stat().st_size / 1e9, options=" ".join(v),
                        raw_s=statistics.median(raws), readinto_s=statistics.median(reads),
                        scan_s=statistics.median(scans),
                        ratio=statistics.median(s / r for s, r in zip(scans, raws, strict=True)),
+                       cpu_ratio=statistics.median(c / r for c, r in zip(cpus, raws,
+                                                                           strict=True)),
                        ratio_readinto=statistics.median(s / r for s, r in zip(scans, reads,
                                                                                strict=True)),
-                       peak_anon_mb=max(r["anon_mb"] for r in runs[v]),
-                       vmhwm_mb=max(r["hwm_mb"] for r in runs[v]),
-                       fresh_cache=all(r["fresh"] for r in runs[v]))
+                       peak_anon_mb=max(r["anon_mb"] for r in got),
+                       vmhwm_mb=max(r["hwm_mb"] for r in got),
+                       fresh_cache=all(r["fresh"] for r in got))
             rows.append(row)
             print(f"{side}x{side} x {n} frames ({row['gb']:.2f} GB) {row['options'] or 'scan'}: "
-                  f"raw {row['raw_s']:.2f} s, "
-                  f"readinto {row['readinto_s']:.2f} s, scan {row['scan_s']:.2f} s, "
-                  f"ratio {row['ratio']:.2f} (to readinto {row['ratio_readinto']:.2f}), "
+                  f"raw {row['raw_s']:.2f} s, readinto {row['readinto_s']:.2f} s, "
+                  f"scan {row['scan_s']:.2f} s, ratio {row['ratio']:.2f} (to readinto "
+                  f"{row['ratio_readinto']:.2f}; CPU time {row['cpu_ratio']:.2f}), "
                   f"peak anon {row['peak_anon_mb']:.0f} MB (VmHWM {row['vmhwm_mb']:.0f} MB), "
                   f"fresh cache {row['fresh_cache']}", flush=True)
     print("targets: ratio <= 3 at 128, 512, 2048; peak anonymous memory <= 500 MB at every size")

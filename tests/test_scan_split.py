@@ -106,10 +106,25 @@ def test_short_movie_is_one_part():
     assert len(plan_parts(movie, DetectSettings(), 4)) == 1
 
 
-def test_the_edge_statistic_keeps_a_movie_in_one_part():
-    movie = ArrayMovie(np.zeros((40_000, SIDE, SIDE), np.uint16))
-    assert len(plan_parts(movie, DetectSettings(), 2, min_part=MIN_JOIN)) == 2
-    assert len(plan_parts(movie, DetectSettings(fronts=True), 2, min_part=MIN_JOIN)) == 1
+@pytest.mark.parametrize("where", ["-3", "+3", "+200"])
+def test_the_edge_statistic_split_at_its_template_boundaries(where):
+    """With --dim-fronts a part's buffer starts where the whole scan's does, and it reads the two
+    epochs before for their templates: the same features and candidates, a blanked frame and an
+    event near the second join included."""
+    s = DetectSettings(fronts=True)
+    parts = plan_parts(ArrayMovie(np.zeros((9000, SIDE, SIDE), np.uint16)), s, 3, MIN_JOIN)
+    assert len(parts) == 3 and all(p.first_read < p.read_from for p in parts[1:])
+    at = parts[2].start + int(where)
+    movie = ArrayMovie(_movie(9000, at, seed=4, blank_at=parts[1].start + 40))
+    fw, _ = compute_features(movie, s)
+    fs, meta = scan_in_parts(movie, s, 3, min_part=MIN_JOIN)
+    assert meta["parts"] == 3
+    _same(fw, fs)
+    for name in ("score", "pulse", "zw", "blank"):
+        assert np.array_equal(fw[name], fs[name]), name
+    cw = propose(fw, s)
+    assert ((cw["kind"] == "step") & ((cw["frame"] - at).abs() <= 1)).any(), cw
+    pd.testing.assert_frame_equal(cw, propose(fs, s))
 
 
 def test_scan_workers_matches_the_whole_scan(tmp_path):
@@ -162,8 +177,7 @@ def test_bad_split_arguments_are_one_line(tmp_path):
     path = tmp_path / "m.npy"
     np.save(path, _movie(300, None, seed=2))
     for args in (["--workers", "0"], ["--scheduler", "tcp://127.0.0.1:1"],
-                 ["--workers", "2", "--scheduler", "tcp://127.0.0.1:1"],
-                 ["--dim-fronts", "--workers", "2"]):
+                 ["--workers", "2", "--scheduler", "tcp://127.0.0.1:1"]):
         r = reviewer("scan", path, *args, timeout=120)
         assert r.returncode == 2, (args, r.stderr)
         assert len(r.stderr.strip().splitlines()) == 1 and "Traceback" not in r.stderr

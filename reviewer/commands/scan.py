@@ -32,8 +32,7 @@ def register(subparsers) -> None:
                         "--false-alarms (default 1)")
     p.add_argument("--dim-fronts", action="store_true",
                    help="also read each region through its edges: finds sub-pixel advances of dim "
-                        "fronts at very low dose, at 2-3x the scan time for frames up to 512²; "
-                        "one process only (not with --workers / --scheduler)")
+                        "fronts at very low dose, at 2-2.5x the scan time for frames up to 512²")
     p.add_argument("--patterns", action="store_true",
                    help="also test each region for changes of pattern that keep its mean (a lattice "
                         "patch that turns, fringes that shift), on 2x2-binned frames: several "
@@ -132,8 +131,6 @@ def run(args: argparse.Namespace) -> int:
                               fronts=args.dim_fronts, patterns=args.patterns)
     if args.workers is not None and args.workers < 1:
         raise BadInput(f"--workers {args.workers}: 1 or more")
-    if args.dim_fronts and (args.workers is not None or args.scheduler is not None):
-        raise BadInput("--dim-fronts scans in one process: leave out --workers / --scheduler")
     if args.patterns and (args.workers is not None or args.scheduler is not None):
         raise BadInput("--patterns scans in one process: leave out --workers / --scheduler")
     movie = open_checked(args)

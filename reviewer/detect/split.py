@@ -7,7 +7,12 @@ window (plan_parts): a part reads from `ctx` frames before its first frame, in b
 frame numbers as the whole scan, so every chunk sees the same buffer. The noise model is measured
 once by a light first pass over the frames the whole scan measures it on (estimate_model); each
 later part also reads a few hundred frames before its context to set the blank test's reference
-(warm-up). Parts write their per-frame features into their own folder (scan_part); stitch() puts
+(warm-up). With the front statistic (--dim-fronts) rows reach the buffer an epoch at a time and
+chunks end on template boundaries; a part's buffer starts where the whole scan's does after the
+chunk before (2·ctx rows before the frames read then), and the part reads from the start of the
+epoch before it, so the templates of the epochs its frames are scored with are the whole scan's
+(the front statistic's blank reference comes from those two epochs; the whole scan's from up to
+33). Parts write their per-frame features into their own folder (scan_part); stitch() puts
 them together -- the drift carried across the joins -- and the whole-movie steps (calibration with
 the median effective number of tests, the level-step features) run once on the stitched features,
 so candidates are proposed once, as for the whole scan.
@@ -21,20 +26,19 @@ from __future__ import annotations
 
 import shutil
 import time
-from dataclasses import asdict, dataclass
+from dataclasses import asdict, dataclass, replace
 from pathlib import Path
 
 import numpy as np
 
 from reviewer.detect.drift import phase_shift
-from reviewer.detect.readahead import read_ahead
 from reviewer.detect.settings import DetectSettings
 from reviewer.detect.stream import (
     DRIFT_EVERY,
     NEW_FEATURES,
-    ScanCancelled,
     _Scanner,
     block_frames,
+    fed_blocks,
 )
 from reviewer.errors import BadInput
 
@@ -53,10 +57,16 @@ class Part:
     index: int
     start: int      # first frame scored
     stop: int       # one past the last frame scored
-    read_from: int  # first frame read (start − ctx; 0 for the first part)
-    read_to: int    # one past the last frame read (stop + ctx; the movie's end for the last part)
+    read_from: int  # first frame in the buffer (the whole scan's buffer start there; 0 for the first)
+    read_to: int    # one past the last frame read (where the whole scan scores up to stop)
     closes_at: int  # first frame of the chunk that closes the part's first drift window
     last: bool
+    fed_from: int = -1  # first frame read: before read_from when the front statistic needs the
+    #                     whole epochs there for its templates (-1: read_from)
+
+    @property
+    def first_read(self) -> int:
+        return self.read_from if self.fed_from < 0 else self.fed_from
 
     def to_dict(self) -> dict:
         return asdict(self)
@@ -68,6 +78,7 @@ class _Frames:
 
     def __init__(self, movie, start: int, stop: int) -> None:
         self.movie, self.start, self.stop = movie, start, stop
+        self.shape, self.dtype = movie.shape, movie.dtype
 
     def iter_blocks(self, size: int, reuse: bool = False):
         first = self.start // size * size
@@ -81,36 +92,42 @@ def _scanner(movie, s: DetectSettings, n: int, workdir: Path | None = None) -> _
     return _Scanner(n, tuple(movie.shape), s, str(movie.path), block_frames(movie, s), workdir)
 
 
-def chunk_plan(movie, s: DetectSettings) -> list[tuple[int, int, bool]]:
-    """The whole scan's chunks: (first frame, end frame, closes a drift window), as _Scanner.feed
-    and _score make them for blocks of block_frames() frames."""
+def chunk_plan(movie, s: DetectSettings) -> list[tuple[int, int, bool, int]]:
+    """The whole scan's chunks: (first frame, end frame, closes a drift window, frames read when
+    it is scored), as _Scanner.feed and _score make them for blocks of block_frames() frames (with
+    the front statistic: for its epochs, chunks ending on template boundaries)."""
     n, per = movie.n_frames, block_frames(movie, s)
     probe = _scanner(movie, s, 1)
-    chunk, ctx = probe.chunk, probe.ctx
+    chunk, ctx, fd = probe.chunk, probe.ctx, probe.fronts
+    step = per if fd is None else fd.epoch  # rows reach the buffer a block / an epoch at a time
     out, scored, rows = [], 0, 0
-    for end in [min(a + per, n) for a in range(0, n, per)]:
+    for end in [min(a + step, n) for a in range(0, n, step)]:
         if end - scored >= chunk + ctx:
             upto = end - ctx
+            if fd is not None:  # as _Scanner._aligned
+                a = fd.reach + (upto - fd.reach) // fd.epoch * fd.epoch
+                upto = a if a > scored else upto
             rows += upto - scored
             closes = rows >= DRIFT_EVERY or upto >= n
             rows = 0 if closes else rows
-            out.append((scored, upto, closes))
+            out.append((scored, upto, closes, end))
             scored = upto
     if n > scored:
-        out.append((scored, n, True))
+        out.append((scored, n, True, n))
     return out
 
 
 def plan_parts(movie, s: DetectSettings, parts: int, min_part: int = MIN_PART) -> list[Part]:
     """At most `parts` parts of about equal length, split where the whole scan closes a drift
-    window; one part when the movie is too short to split, or when the edge statistic is on (its
-    128-frame templates do not yet carry across a join)."""
-    if s.fronts:
-        parts = 1
+    window; one part when the movie is too short to split. A part's buffer starts where the whole
+    scan's does after the chunk before it (2·ctx rows before the frames read then); with the
+    front statistic a part also reads the two epochs before that, for their templates."""
     plan = chunk_plan(movie, s)
     n = movie.n_frames
-    ctx = _scanner(movie, s, 1).ctx
-    joins = [upto for _, upto, closes in plan[:-1] if closes and upto + ctx <= n]
+    probe = _scanner(movie, s, 1)
+    ctx, fd = probe.ctx, probe.fronts
+    read = {upto: end for _, upto, _, end in plan}  # frames read when the chunk to upto is scored
+    joins = [upto for _, upto, closes, end in plan[:-1] if closes and end <= n]
     cuts: list[int] = []
     for k in range(1, max(parts, 1)):
         ok = [j for j in joins if j - (cuts[-1] if cuts else 0) >= min_part and n - j >= min_part]
@@ -121,29 +138,28 @@ def plan_parts(movie, s: DetectSettings, parts: int, min_part: int = MIN_PART) -
     bounds = [0, *cuts, n]
     out = []
     for i, (a, b) in enumerate(zip(bounds[:-1], bounds[1:], strict=True)):
-        closes = next(c0 for c0, c1, closes in plan if closes and c1 > a)
+        closes = next(c0 for c0, c1, closes, _ in plan if closes and c1 > a)
         last = b == n
-        out.append(Part(i, a, b, max(0, a - ctx) if i else 0, n if last else b + ctx, closes,
-                        last))
+        first = max(0, read[a] - 2 * ctx) if i else 0
+        fed = -1 if fd is None or not i else max(0, (first // fd.epoch - 1) * fd.epoch)
+        out.append(Part(i, a, b, first, n if last else read[b], closes, last, fed))
     return out
 
 
-def _run(sc: _Scanner, frames: _Frames, per: int, cancel=None, progress=None) -> np.ndarray | None:
-    """Feed every block of `frames` to sc (progress gets the number of frames just read); returns
-    the first drift window's mean image."""
+def _run(sc: _Scanner, frames: _Frames, per: int, cancel=None, progress=None,
+         warm: int = 0) -> np.ndarray | None:
+    """Feed every block of `frames` to sc (progress gets the number of frames just read, the first
+    `warm` frames (templates only) left out); returns the first drift window's mean image."""
     first = None
-    blocks = read_ahead(frames, per, sc.reduce)
+    loop = fed_blocks(sc, frames, per, cancel, origin=frames.start)
     try:
-        for start, tiles in blocks:
-            if cancel is not None and cancel.is_set():
-                raise ScanCancelled("scan cancelled")
-            sc.feed(start, tiles)
+        for start, count in loop:
             if first is None and sc.prev_mean is not None:
                 first = sc.prev_mean.copy()
             if progress is not None:
-                progress(len(tiles))
+                progress(max(0, start + count - warm) - max(0, start - warm))
     finally:
-        blocks.close()
+        loop.close()
     return first
 
 
@@ -151,8 +167,7 @@ def estimate_model(movie, s: DetectSettings) -> dict:
     """The light first pass: the noise model measured on the frames the whole scan measures it on
     (those read before its first chunk is scored)."""
     plan = chunk_plan(movie, s)
-    sc = _scanner(movie, s, 1)
-    end = min(movie.n_frames, plan[0][1] + sc.ctx) if plan else movie.n_frames
+    end = plan[0][3] if plan else movie.n_frames
     sc = _scanner(movie, s, end)
     _run(sc, _Frames(movie, 0, end), block_frames(movie, s))
     if not sc.scored:  # too short for a chunk before the end: measured when the end is scored
@@ -165,6 +180,7 @@ def _warm(movie, s: DetectSettings, part: Part, model: dict) -> dict:
     a = max(0, part.read_from - WARM)
     if a == part.read_from:
         return model
+    s = replace(s, fronts=False)  # the levels alone (with fronts they come an epoch late)
     sc = _scanner(movie, s, part.read_from - a)
     sc.adopt(model, part.read_from - a)  # context only: nothing is scored
     sc.chunk = 1 << 40
@@ -186,8 +202,10 @@ def scan_part(movie, s: DetectSettings, part: Part, model: dict | None, workdir,
     if part.index:
         if model is None:
             raise ValueError("a later part needs the noise model (estimate_model)")
-        sc.adopt(_warm(movie, s, part, model), part.start - part.read_from)
-    first = _run(sc, _Frames(movie, part.read_from, part.read_to), per, cancel, progress)
+        sc.adopt(_warm(movie, s, part, model), part.start - part.read_from, part.read_from,
+                 part.first_read)
+    first = _run(sc, _Frames(movie, part.first_read, part.read_to), per, cancel, progress,
+                 part.read_from - part.first_read)
     if part.last:
         sc.finish()
         first = sc.prev_mean.copy() if first is None and sc.prev_mean is not None else first

@@ -5,7 +5,7 @@ from __future__ import annotations
 
 import shutil
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -16,7 +16,7 @@ from reviewer.detect import fronts as fr
 from reviewer.detect.drift import explained_shift, phase_shift
 from reviewer.detect.pattern import PatternTrack
 from reviewer.detect.pulse import null_pulse_tests, pulse_chunk
-from reviewer.detect.readahead import read_ahead
+from reviewer.detect.readahead import piece_frames, read_ahead
 from reviewer.detect.reduce import Scratch, bin_block
 from reviewer.detect.scoring import noise_gain, noise_sd, score_bands
 from reviewer.detect.settings import DetectSettings
@@ -87,6 +87,7 @@ class _Scanner:
             if s.patterns else None
         self.fill = 0          # rows of buf in use
         self.base = 0          # absolute index of buffer row 0
+        self.origin = 0        # the movie's frame number of row 0 (a split part's: its first row)
         self.scored = 0        # frames scored so far
         self.recent = np.zeros(64)
         self.n_recent = 0
@@ -94,6 +95,7 @@ class _Scanner:
         self.ref_total = 0.0
         self.gain: float | None = None
         self.scratch = Scratch()
+        self.read_scratch = Scratch()  # reduce()'s, in the reader thread
         self.k_medians: list[float] = []
         self.prev_mean: np.ndarray | None = None
         self.drift = np.zeros(2)
@@ -150,8 +152,9 @@ class _Scanner:
         b = self.front_b
         if b == 1:
             images = block  # copied by the front delay
-        else:  # binned once; the tile sums are sums of those bins
-            images = bin_block(block, b, block.shape[1] // b, block.shape[2] // b)
+        else:  # binned once (into the reader's reused buffers); tile sums: sums of those bins
+            images = bin_block(block, b, block.shape[1] // b, block.shape[2] // b,
+                               self.read_scratch)
             if not masked:
                 tiles = bin_block(images, self.tile // b, self.gy, self.gx)
         # the epochs' templates and projections run here, in the reader thread (reduce is
@@ -164,15 +167,25 @@ class _Scanner:
         if self.fronts is None:
             self._feed_rows(start, tiles, None)
             return
-        for s0, t, front in tiles:
-            self._feed_rows(s0, t, front)
+        self._feed_epochs(tiles)
+
+    def _feed_epochs(self, epochs: list[tuple]) -> None:
+        """The front delay's finished epochs (numbered in movie frames), rows before this
+        scanner's first (origin: a split part's warm-up epochs) left out."""
+        for s0, t, front in epochs:
+            r = s0 - self.origin
+            if r + len(t) <= 0:
+                continue
+            if r < 0:
+                t, front, r = t[-r:], front[-r:], 0
+            self._feed_rows(r, t, front)
 
     def _aligned(self, upto: int) -> int:
         """With fronts, chunks end on a template boundary where they can (whole segments)."""
         fd = self.fronts
         if fd is None:
             return upto
-        a = fd.reach + (upto - fd.reach) // fd.epoch * fd.epoch
+        a = fd.reach + (upto + self.origin - fd.reach) // fd.epoch * fd.epoch - self.origin
         return a if a > self.scored else upto
 
     def _feed_rows(self, start: int, tiles: np.ndarray, front: np.ndarray | None) -> None:
@@ -292,17 +305,17 @@ class _Scanner:
     def _front_scores(self, cs, upto: int) -> None:
         """Score the front values of frames scored..upto-1, one template segment at a time, and
         keep per frame whichever statistic (tile sums or fronts) is stronger."""
-        fd, s = self.fronts, self.s
+        fd, s, o = self.fronts, self.s, self.origin  # epochs count movie frames
         first = next((k for k, w in enumerate(s.windows) if w >= fr.FRONT_MIN_W), 0)
-        for e in range(fd.scoring_epoch(self.scored), fd.scoring_epoch(upto - 1) + 1):
-            s0 = max(self.scored, e * fd.epoch + fd.reach if e else 0)
-            s1 = min(upto, (e + 1) * fd.epoch + fd.reach)
+        for e in range(fd.scoring_epoch(self.scored + o), fd.scoring_epoch(upto - 1 + o) + 1):
+            s0 = max(self.scored, (e * fd.epoch + fd.reach if e else 0) - o)
+            s1 = min(upto, (e + 1) * fd.epoch + fd.reach - o)
             if s1 <= s0 or e in fd.empty or e + 1 in fd.empty:
                 continue
             r0 = max(0, s0 - self.base - self.ctx)
             r1 = min(self.fill, s1 - self.base + self.ctx)
             ser = fd.detrend(fd.series(self.fbuf[r0:r1, 0], self.fbuf[r0:r1, 1],
-                                       self.base + r0, e))
+                                       self.base + r0 + o, e))
             # the long windows only: a dim front needs them, and a change the short window sees
             # is strong enough for the tile sums
             fs = score_bands(ser, s0 - self.base - r0, s1 - self.base - r0, s.windows[first:],
@@ -335,8 +348,8 @@ class _Scanner:
     def finish(self) -> None:
         if self.pattern is not None:
             self.pattern.flush()
-        for s0, t, front in self.fronts.flush() if self.fronts is not None else []:
-            self._feed_rows(s0, t, front)
+        if self.fronts is not None:
+            self._feed_epochs(self.fronts.flush())
         end = self.base + self.fill
         if end > self.scored:
             self._score(end)
@@ -347,13 +360,21 @@ class _Scanner:
         return {"ref_total": self.ref_total, "ref0": self.ref0, "gain": self.gain,
                 "recent": self.recent.tolist(), "n_recent": self.n_recent}
 
-    def adopt(self, model: dict, context: int) -> None:
+    def adopt(self, model: dict, context: int, origin: int = 0, fed_from: int | None = None) -> None:
         """Scan as a later part of a split movie: take `model` (noise_model()) instead of measuring
-        it, and treat the first `context` rows fed as context only (never scored themselves)."""
+        it, and treat the first `context` rows fed as context only (never scored themselves).
+        `origin`: the movie's frame number of row 0; `fed_from`: the first frame reduce() gets,
+        before it when the front statistic's templates need earlier whole epochs (those rows are
+        left out of the buffer)."""
         self.ref_total, self.ref0, self.gain = model["ref_total"], model["ref0"], model["gain"]
         self.recent[:] = model["recent"]
         self.n_recent = model["n_recent"]
         self.scored = context
+        self.origin = origin
+        if self.fronts is not None:
+            fd = self.fronts
+            self.fronts = fr.FrontDelay(self.gy, self.gx, self.tile, self.front_b, fd.reach,
+                                        origin if fed_from is None else fed_from)
 
     def _score(self, upto: int) -> None:
         self._normalise()
@@ -406,7 +427,9 @@ class _Scanner:
             np.save(self.workdir / f"{name}.npy", a)
         return a
 
-    def features(self) -> tuple[dict[str, np.ndarray], dict]:
+    def features(self, flush: bool = True) -> tuple[dict[str, np.ndarray], dict]:
+        """The whole movie's features and meta (`flush`: memory-mapped features synced to disk
+        here; leave it to save_scan when it follows in this process)."""
         f = self.f
         k_eff = float(np.median(self.k_medians)) if self.k_medians else 1.0
         k_pulse = null_pulse_tests(self.gy, self.gx)
@@ -434,7 +457,7 @@ class _Scanner:
             f.update(qmax=pt.qmax, qarg=pt.qarg, qmed=pt.qmed, qmodel=pt.model)
             f.update(pt.features(self._alloc, self._scalar))
         for a in f.values():
-            if isinstance(a, np.memmap):
+            if flush and isinstance(a, np.memmap):
                 a.flush()
         order = ["score"] + [k for k in f if k != "score"]
         meta = {"frames": self.n, "tile": self.tile, "grid": [self.gy, self.gx], "k_eff": k_eff,
@@ -451,11 +474,44 @@ CHUNK_CELLS = 1 << 22  # tile values scored at a time (frames × tiles), at leas
 LARGE_GRID = 1 << 15  # tiles per frame above which context rows are kept to the minimum
 
 
+def _frame_bytes(movie) -> int:
+    return movie.shape[0] * movie.shape[1] * np.dtype(movie.dtype).itemsize
+
+
 def block_frames(movie, s: DetectSettings) -> int:
     """Frames per read: settings.read_block, fewer when the frames are large (a 2k×2k uint16 frame
     is 8 MiB, so 64 of them decoded at once would be 512 MiB)."""
-    frame_bytes = movie.shape[0] * movie.shape[1] * np.dtype(movie.dtype).itemsize
-    return max(1, min(s.read_block, BLOCK_BYTES // max(frame_bytes, 1)))
+    return max(1, min(s.read_block, BLOCK_BYTES // max(_frame_bytes(movie), 1)))
+
+
+def _piece(movie, per: int) -> int:
+    """Frames per read within a block: pieces (readahead.piece_frames) for readers whose reads cost
+    the same in any size (positioned reads of plain bytes, arrays in memory); whole blocks for the
+    others (an HDF5 or Zarr chunk is decoded again for every read that touches it)."""
+    from reviewer.movie.base import ArrayMovie
+    from reviewer.movie.offsets import OffsetMovie
+
+    source = getattr(movie, "movie", movie)  # split.py's _Frames reads through to its movie
+    if isinstance(source, OffsetMovie | ArrayMovie):
+        return piece_frames(per, _frame_bytes(movie))
+    return per
+
+
+def fed_blocks(sc: _Scanner, movie, per: int, cancel=None,
+               origin: int = 0) -> Iterator[tuple[int, int]]:
+    """The one read-ahead -> feed loop (whole scans here, parts in split.py): every block of `per`
+    frames of `movie` read and reduced in the reader thread, in pieces where that pays (_piece),
+    and fed to `sc` in order; yields (start, frames) after each block is fed. Raises ScanCancelled
+    once `cancel` is set; the reader has stopped when the loop ends, however it ends."""
+    blocks = read_ahead(movie, per, sc.reduce, piece=_piece(movie, per), origin=origin)
+    try:
+        for start, frames, tiles in blocks:
+            if cancel is not None and cancel.is_set():
+                raise ScanCancelled("scan cancelled")
+            sc.feed(start, tiles)
+            yield start, frames
+    finally:
+        blocks.close()
 
 
 def compute_features(movie, settings: DetectSettings | None = None,
@@ -463,7 +519,8 @@ def compute_features(movie, settings: DetectSettings | None = None,
                      cancel=None, workdir=None) -> tuple[dict[str, np.ndarray], dict]:
     """Read `movie` once, in order, and return (features, meta). With `workdir` (a scan folder, see
     cache.save_scan) the per-frame features are memory-mapped .npy files in its NEW_FEATURES
-    subfolder, written as they are made; save_scan then only moves them into place."""
+    subfolder, written as they are made (not synced: save_scan syncs them and moves them into
+    place)."""
     s = settings or DetectSettings()
     if movie.n_frames < 1:
         raise BadInput(f"{movie.path}: the movie has no frames")
@@ -475,18 +532,17 @@ def compute_features(movie, settings: DetectSettings | None = None,
         shutil.rmtree(work, ignore_errors=True)
         work.mkdir(parents=True)
     sc = _Scanner(movie.n_frames, tuple(movie.shape), s, str(movie.path), per, work)
-    blocks = read_ahead(movie, per, sc.reduce)
+    loop = fed_blocks(sc, movie, per, cancel)
     try:
-        for start, tiles in blocks:
-            if cancel is not None and cancel.is_set():
-                raise ScanCancelled("scan cancelled")
-            sc.feed(start, tiles)
+        for start, frames in loop:
             if progress is not None:
-                progress(start + len(tiles))
+                progress(start + frames)
     finally:
-        blocks.close()  # the reader thread has stopped when this returns
+        loop.close()  # the reader thread has stopped when this returns
     sc.finish()
-    features, meta = sc.features()
+    # not synced here: save_scan syncs each feature file before it moves them into place (its
+    # msync after one here doubled the disk waits: 230 against 116 ms for 21 files, busy disk)
+    features, meta = sc.features(flush=False)
     meta.update(shape=list(movie.shape), seconds=round(time.perf_counter() - t0, 3),
                 fingerprint=getattr(movie, "fingerprint", ""))
     return features, meta
