@@ -68,6 +68,8 @@ TRIM = 0.8  # share of the inner cells a stage-jump fit and its explained share 
 REFINE_STEPS = 10  # Gauss–Newton steps refining the correlation's shift
 POLISH = 0.125  # cells: then a downhill search on a grid this fine, at most POLISH_STEPS steps
 POLISH_STEPS = 8
+FIT_CELLS = 64  # a stage jump is judged on at most this many cells a side (the central ones)
+SPREAD = 1.25  # times the noise floor the best-fitting cells' change must exceed to be judged
 SPLINE = 3  # order of the spline that moves the image (cubic: sub-cell shifts of a coarse grid)
 
 
@@ -164,12 +166,23 @@ def explained_shift(before: np.ndarray, after: np.ndarray, upsample: int = 10,
     the noise on too few cells (E0 below twice the floor) is not a whole-field shift. A stage
     jump is explained almost wholly, a local change hardly at all, whatever shift is reported."""
     a = np.asarray(before, dtype=np.float64)
-    weight = 1.0 if noise is None else 1.0 / np.maximum(np.asarray(noise, np.float64), 1e-12)
-    d, e0, e1, inner = fit_shift(a, after, weight, upsample)
+    b = np.asarray(after, dtype=np.float64)
+    weight = np.broadcast_to(1.0 if noise is None else 1.0 / np.maximum(
+        np.asarray(noise, np.float64), 1e-12), a.shape)
+    # a large grid is judged on its central FIT_CELLS × FIT_CELLS cells (plenty of texture; the
+    # fit's cost grows with the cells)
+    cy, cx = (max((n - FIT_CELLS) // 2, 0) for n in a.shape)
+    part = (slice(cy, cy + FIT_CELLS), slice(cx, cx + FIT_CELLS))
+    a, b, weight = a[part], b[part], weight[part]
+    floor = 0.0 if noise is None else trimmed_noise_floor()
+    if noise is not None and not _trimmed((b - a) ** 2 * weight)[0] > SPREAD * floor:
+        # the best-fitting cells are noise already: a change on a few cells, never a whole-field
+        # shift (and the fit is skipped)
+        return float(np.hypot(*phase_shift(a, b, upsample=upsample)[:2])), 0.0
+    d, e0, e1, inner = fit_shift(a, b, weight, upsample)
     size = float(np.hypot(*d))
     if a[inner].size < max(MIN_INNER, MIN_INNER_SHARE * a.size):
         return size, 0.0  # too little left to judge: not a whole-field shift
-    floor = 0.0 if noise is None else trimmed_noise_floor()
     if not e0 > 2.0 * floor:
         return size, 0.0
     return size, float(np.clip((e0 - e1) / (e0 - floor), 0.0, 1.0))
