@@ -159,10 +159,12 @@ def local_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float,
             kept.append(t)
             kept_w.append(int(windows[kw]))
             seen.add(t)
+    found_by = dict(zip(kept, kept_w, strict=True))  # frame -> the window that kept it
     kept.sort()
     onset = {t: min(max(t + int(shift[t]), 0), n - 1) for t in kept}
     events = [dict(frame=onset[t], frame_end=None, score=float(score[t]), x=float(x[t]),
-                   y=float(y[t]), sign=int(sign[t]), kind="step", at=t) for t in kept]
+                   y=float(y[t]), sign=int(sign[t]), kind="step", at=t, w=found_by[t])
+              for t in kept]
     events = _one_per_change(events, near)
     used: set[int] = set()
     for i, e in enumerate(events):  # something appears and later leaves the same place
@@ -172,20 +174,33 @@ def local_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float,
             o = events[j]
             if o["frame"] - e["frame"] > s.transient_max:
                 break
+            here = np.hypot(o["x"] - e["x"], o["y"] - e["y"]) <= PAIR_NEAR * near
+            if here and o["sign"] == e["sign"] and e["sign"] != 0:
+                break  # a later change of the same sign here is the entry (e: a long window's echo)
             if j in used or o["sign"] != -e["sign"] or e["sign"] == 0:
                 continue
             a, b = smax[e["at"]], smax[o["at"]]
-            if np.hypot(o["x"] - e["x"], o["y"] - e["y"]) <= PAIR_NEAR * near and min(a, b) >= 0.5 * max(a, b):
+            if here and min(a, b) >= 0.5 * max(a, b):
                 e["kind"], e["frame_end"] = "transient", o["frame"] - 1
                 e["score"] = max(e["score"], o["score"])
                 used.add(j)
                 break
     events = [e for i, e in enumerate(events) if i not in used]
     spans = [e for e in events if e["kind"] == "transient"]
-    return [e for e in events if e["kind"] == "transient" or not any(  # a longer window's echo
-        o["frame"] - s.separation <= e["frame"] <= o["frame_end"] + s.separation + 1
-        and np.hypot(o["x"] - e["x"], o["y"] - e["y"]) <= near
+    return [e for e in events if e["kind"] == "transient" or not any(
+        _echo_of(e, o, s.separation) and np.hypot(o["x"] - e["x"], o["y"] - e["y"]) <= near
         for o in spans)]
+
+
+def _echo_of(e: dict, o: dict, separation: int) -> bool:
+    """Whether step e is an echo of transient o (same place): it starts within o's span (± the
+    separation), or the w-frame window that found it holds the whole transient, after e's onset
+    with e's sign or before it with the opposite sign (a long window straddling a short pulse)."""
+    if o["frame"] - separation <= e["frame"] <= o["frame_end"] + separation + 1:
+        return True
+    if e["frame"] < o["frame"]:
+        return e["sign"] == o["sign"] and o["frame_end"] < e["frame"] + e["w"]
+    return e["sign"] == -o["sign"] and o["frame"] >= e["frame"] - e["w"]
 
 
 def pulse_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float,
