@@ -15,10 +15,10 @@ PULSE_NMS = 8  # frames: pulse peaks closer than this are one event
 PAIR_NEAR = 0.75  # appear/leave pairs: at most this share of the 4-tile "same place" distance apart
 ECHO_SHARE = 0.8  # a kept event explains a nearby peak when its own value there is ≥ this share
 EDGE_REACH = 5  # frames beyond the shortest window where a short pulse's other edge is looked for
-# a lasting step's z grows with the window (as √w in white noise; measured 1.2-1.4 times the
-# 3-frame window's at the longest on the generator's high-dose fronts, 1.7 and more on faint
-# steps); a 3-frame particle's falls (0.65-0.75 times): a step whose longest window stays below
-# LASTING times its own is short-lived (at 1.0 a few faint true steps of the low-dose recall test
+# a lasting step's z grows with the window (as √w in white noise; measured 1.2-1.6 times the
+# 3-frame window's on the generator's high-dose fronts, 1.7 and more on faint steps); a 3-frame
+# particle's falls (0.65-0.75 times): a step whose longer windows all stay below LASTING times
+# its own is short-lived (at 1.0 a few faint true steps of the low-dose recall test
 # were taken for particles)
 LASTING = 0.8
 
@@ -217,8 +217,8 @@ def _without_echoes(events: list[dict], s: DetectSettings, near: float) -> list[
 
 
 def _short_lived(e: dict, f: dict[str, np.ndarray], s: DetectSettings) -> None:
-    """A step found by a shorter window that the longest window does not back as a lasting change
-    would (its z there below LASTING times the finding window's) is one edge of a short pulse whose
+    """A step found by a shorter window that no longer window backs as a lasting change would
+    (their z there below LASTING times the finding window's) is one edge of a short pulse whose
     other edge stayed under the threshold: it becomes a transient, from the other edge (the
     strongest frame of the shortest window's series, its maximum over the field, within
     EDGE_REACH frames beyond that window before or after the step, whichever side is stronger)
@@ -230,7 +230,9 @@ def _short_lived(e: dict, f: dict[str, np.ndarray], s: DetectSettings) -> None:
         return
     zw = f["zw"]
     short = float(zw[t, windows.index(e["w"])])
-    if float(zw[max(t - 2, 0): t + 3, windows.index(longest)].max()) >= LASTING * short:
+    longer = zw[max(t - 2, 0): t + 3, [k for k, w in enumerate(windows) if w > e["w"]]]
+    longer = longer[:, longer.max(axis=0) > 0]  # a window the trend check zeroed here says nothing
+    if not longer.size or float(longer.max()) >= LASTING * short:
         return
     z0 = zw[:, 0]
     reach = windows[0] + EDGE_REACH
