@@ -30,6 +30,7 @@ from reviewer.movie import ArrayMovie, Timing
 
 SIDE = 128
 VIEW = 160  # the larger view the crop moves in (stage jump, drift)
+QUIET = 30  # frames: farther than this from every true event, a frame is event-free
 
 
 def image(name: str) -> np.ndarray:
@@ -107,8 +108,13 @@ def main() -> None:
             st = int(glob[glob["what"] == "stage"]["frame"].iloc[0])
             stage_ok = bool(((g["frame"] - st).abs() <= 2).any()
                             and (g[(g["frame"] - st).abs() <= 2]["cause"] == "stage").any())
+            # event-free frames: more than QUIET frames from every true event (local or global)
+            gap = np.abs(np.arange(a.frames)[:, None] - truth["frame"].to_numpy()[None, :]).min(1)
+            far = np.abs(loc[:, None] - truth["frame"].to_numpy()[None, :]).min(axis=1) > QUIET
             rows.append(dict(image=name, dose=dose, events=len(grow), found=len(hits),
-                             false=len(loc) - len(hits), globals_flagged=f"{flagged}/{len(glob)}",
+                             false=len(loc) - len(hits), false_quiet=int(far.sum()),
+                             quiet_frames=int((gap > QUIET).sum()),
+                             globals_flagged=f"{flagged}/{len(glob)}",
                              stage_jump_as_stage=stage_ok, seconds=round(secs, 2)))
             print(rows[-1], flush=True)
     df = pd.DataFrame(rows)
@@ -120,6 +126,10 @@ def main() -> None:
           f"{df['false'].sum()} in {frames} frames ({df['false'].sum() / frames * 1e4:.2f} per "
           f"10^4 frames, event frames included); stage jumps flagged as stage "
           f"{int(df['stage_jump_as_stage'].sum())}/{len(df)}")
+    quiet = df["quiet_frames"].sum()
+    print(f"false local candidates more than {QUIET} frames from every event: "
+          f"{df['false_quiet'].sum()} in {quiet} event-free frames "
+          f"({df['false_quiet'].sum() / max(quiet, 1) * 1e4:.2f} per 10^4)")
 
 
 if __name__ == "__main__":

@@ -15,6 +15,13 @@ CANDIDATE_COLUMNS = ("frame", "frame_end", "time_s", "kind", "score", "x", "y", 
 PULSE_NMS = 8  # frames: pulse peaks closer than this are one event
 PAIR_NEAR = 0.75  # appear/leave pairs: at most this share of the 4-tile "same place" distance apart
 ECHO_SHARE = 0.8  # a kept event explains a nearby peak when its own value there is ≥ this share
+EDGE_REACH = 5  # frames beyond the shortest window where a short pulse's other edge is looked for
+# a lasting step's z grows with the window (as √w in white noise; measured 1.2-1.6 times the
+# 3-frame window's on the generator's high-dose fronts, 1.7 and more on faint steps); a 3-frame
+# particle's falls (0.65-0.75 times): a step whose longer windows all stay below LASTING times
+# its own is short-lived (at 1.0 a few faint true steps of the low-dose recall test
+# were taken for particles)
+LASTING = 0.8
 
 
 def _runs(mask: np.ndarray) -> list[tuple[int, int]]:
@@ -160,10 +167,12 @@ def local_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float,
             kept.append(t)
             kept_w.append(int(windows[kw]))
             seen.add(t)
+    found_by = dict(zip(kept, kept_w, strict=True))  # frame -> the window that kept it
     kept.sort()
     onset = {t: min(max(t + int(shift[t]), 0), n - 1) for t in kept}
     events = [dict(frame=onset[t], frame_end=None, score=float(score[t]), x=float(x[t]),
-                   y=float(y[t]), sign=int(sign[t]), kind="step", at=t) for t in kept]
+                   y=float(y[t]), sign=int(sign[t]), kind="step", at=t, w=found_by[t])
+              for t in kept]
     events = _one_per_change(events, near)
     used: set[int] = set()
     for i, e in enumerate(events):  # something appears and later leaves the same place
@@ -173,20 +182,82 @@ def local_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float,
             o = events[j]
             if o["frame"] - e["frame"] > s.transient_max:
                 break
+            here = np.hypot(o["x"] - e["x"], o["y"] - e["y"]) <= PAIR_NEAR * near
+            if here and o["sign"] == e["sign"] and e["sign"] != 0:
+                break  # a later change of the same sign here is the entry (e: a long window's echo)
             if j in used or o["sign"] != -e["sign"] or e["sign"] == 0:
                 continue
             a, b = smax[e["at"]], smax[o["at"]]
-            if np.hypot(o["x"] - e["x"], o["y"] - e["y"]) <= PAIR_NEAR * near and min(a, b) >= 0.5 * max(a, b):
+            if here and min(a, b) >= 0.5 * max(a, b):
                 e["kind"], e["frame_end"] = "transient", o["frame"] - 1
                 e["score"] = max(e["score"], o["score"])
                 used.add(j)
                 break
-    events = [e for i, e in enumerate(events) if i not in used]
+    events = _without_echoes([e for i, e in enumerate(events) if i not in used], s, near)
+    for e in events:
+        if e["kind"] == "step":
+            _short_lived(e, f, s)
+    return _without_echoes(events, s, near)
+
+
+def _without_echoes(events: list[dict], s: DetectSettings, near: float) -> list[dict]:
+    """Drops the steps that are echoes of a transient at their place (_echo_of), and a transient
+    made of one edge (_short_lived) that lies within a paired one's span there."""
     spans = [e for e in events if e["kind"] == "transient"]
-    return [e for e in events if e["kind"] == "transient" or not any(  # a longer window's echo
-        o["frame"] - s.separation <= e["frame"] <= o["frame_end"] + s.separation + 1
-        and np.hypot(o["x"] - e["x"], o["y"] - e["y"]) <= near
-        for o in spans)]
+    out = []
+    for e in events:
+        others = [o for o in spans if o is not e and not o.get("edge")
+                  and np.hypot(o["x"] - e["x"], o["y"] - e["y"]) <= near]
+        if e["kind"] == "step" and any(_echo_of(e, o, s.separation) for o in others):
+            continue
+        if e.get("edge") and any(o["frame"] - s.separation <= e["frame"] <= o["frame_end"]
+                                 + s.separation + 1 for o in others):
+            continue
+        out.append(e)
+    return out
+
+
+def _short_lived(e: dict, f: dict[str, np.ndarray], s: DetectSettings) -> None:
+    """A step found by a shorter window that no longer window backs as a lasting change would
+    (their z there below LASTING times the finding window's) is one edge of a short pulse whose
+    other edge stayed under the threshold: it becomes a transient, from the other edge (the
+    strongest frame of the shortest window's series, its maximum over the field, within
+    EDGE_REACH frames beyond that window before or after the step, whichever side is stronger)
+    to the step, or from the step to it. Steps the longest window cannot reach (near the movie's
+    ends) stay steps."""
+    windows = list(s.windows)
+    longest, t, n = max(windows), e["at"], len(f["score"])
+    if e["w"] >= longest or t - longest < 0 or t + longest > n:
+        return
+    zw = f["zw"]
+    short = float(zw[t, windows.index(e["w"])])
+    longer = zw[max(t - 2, 0): t + 3, [k for k, w in enumerate(windows) if w > e["w"]]]
+    longer = longer[:, longer.max(axis=0) > 0]  # a window the trend check zeroed here says nothing
+    if not longer.size or float(longer.max()) >= LASTING * short:
+        return
+    z0 = zw[:, 0]
+    reach = windows[0] + EDGE_REACH
+    t0 = e["frame"]
+    before = z0[max(t0 - reach, 1): max(t0 - 1, 1)]
+    after = z0[min(t0 + 2, n): min(t0 + reach + 1, n)]
+    if not len(before) and not len(after):
+        return
+    if len(before) and (not len(after) or before.max() > after.max()):
+        e["frame"], e["frame_end"] = max(t0 - reach, 1) + int(np.argmax(before)), t0 - 1
+    else:
+        e["frame_end"] = t0 + 2 + int(np.argmax(after)) - 1
+    e["kind"], e["edge"] = "transient", True
+
+
+def _echo_of(e: dict, o: dict, separation: int) -> bool:
+    """Whether step e is an echo of transient o (same place): it starts within o's span (± the
+    separation), or the w-frame window that found it holds the whole transient, after e's onset
+    with e's sign or before it with the opposite sign (a long window straddling a short pulse)."""
+    if o["frame"] - separation <= e["frame"] <= o["frame_end"] + separation + 1:
+        return True
+    if e["frame"] < o["frame"]:
+        return e["sign"] == o["sign"] and o["frame_end"] < e["frame"] + e["w"]
+    return e["sign"] == -o["sign"] and o["frame"] >= e["frame"] - e["w"]
 
 
 def pulse_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float,

@@ -63,23 +63,126 @@ def phase_shift(ref: np.ndarray, mov: np.ndarray, upsample: int = 20,
     return float(peak[0]), float(peak[1]), confidence
 
 
-def explained_shift(before: np.ndarray, after: np.ndarray,
-                    upsample: int = 10) -> tuple[float, float]:
-    """Whole-field shift (in grid units) from `before` to `after` and the share of their
-    difference's energy that the shift explains: 1 − E|after − shifted before|² / E|after −
-    before|², over the part of the field that stays inside both (a stage jump is explained
-    almost wholly, a local change hardly at all, whatever shift the correlation reports)."""
-    dy, dx, _ = phase_shift(before, after, upsample=upsample)
+TRIM = 0.8  # share of the inner cells a stage-jump fit and its explained share use: the rest (a
+# local change, features that do not move with the field) are left out (common practice, no source)
+REFINE_STEPS = 10  # Gauss–Newton steps refining the correlation's shift
+POLISH = 0.125  # cells: then a downhill search on a grid this fine, at most POLISH_STEPS steps
+POLISH_STEPS = 8
+FIT_CELLS = 64  # a stage jump is judged on at most this many cells a side (the central ones)
+SPREAD = 1.25  # times the noise floor the best-fitting cells' change must exceed to be judged
+SPLINE = 3  # order of the spline that moves the image (cubic: sub-cell shifts of a coarse grid)
+
+
+def _hann(shape: tuple[int, int]) -> np.ndarray:
+    """A 2-D Hann taper: the correlation of images that are not periodic sees no edge jump."""
+    return np.outer(np.hanning(shape[0] + 2)[1:-1], np.hanning(shape[1] + 2)[1:-1])
+
+
+def _trimmed(z2: np.ndarray) -> tuple[float, float]:
+    """Mean of the smallest TRIM share of z2 and the largest value kept."""
+    k = max(int(TRIM * z2.size), 1)
+    part = np.partition(z2.ravel(), k - 1)[:k]
+    return float(part.mean()), float(part[-1])
+
+
+def trimmed_noise_floor() -> float:
+    """The mean of the smallest TRIM share of χ²₁ values (pure noise in units of its variance):
+    E[X; X < q] / TRIM with q the TRIM quantile, and E[X; X < q] = P(χ²₃ < q) since
+    x·f₁(x) = f₃(x) for the χ² densities (worked by hand from the χ² density)."""
+    from scipy.stats import chi2
+
+    return float(chi2.cdf(chi2.ppf(TRIM, 1), 3) / TRIM)
+
+
+def fit_shift(before: np.ndarray, after: np.ndarray, weight: np.ndarray,
+              upsample: int = 10) -> tuple[np.ndarray, float, float, tuple[slice, slice]]:
+    """Whole-field shift (dy, dx) carrying `before` onto `after` by least squares over the TRIM
+    share of cells that fit best (weights `weight`, 1 / variance), started from the plain and the
+    tapered correlation peaks; returns it with the trimmed weighted residual energy after that
+    shift and without one, and the inner cells used (the part no tried shift moves off the grid)."""
+    from scipy import ndimage
+
     a = np.asarray(before, dtype=np.float64)
     b = np.asarray(after, dtype=np.float64)
-    ky = np.fft.fftfreq(a.shape[0])[:, None]
-    kx = np.fft.fftfreq(a.shape[1])[None, :]
-    moved = np.fft.ifft2(np.fft.fft2(a) * np.exp(-2j * np.pi * (ky * dy + kx * dx))).real
-    my, mx = int(np.ceil(abs(dy))), int(np.ceil(abs(dx)))  # the part the shift wrapped round
-    inner_size = max(a.shape[0] - 2 * my, 0) * max(a.shape[1] - 2 * mx, 0)
-    if inner_size < max(MIN_INNER, MIN_INNER_SHARE * a.size):
-        return float(np.hypot(dy, dx)), 0.0  # too little left to judge: not a whole-field shift
-    inner = (slice(my, a.shape[0] - my), slice(mx, a.shape[1] - mx))
-    e0 = float(np.mean((b - a)[inner] ** 2))
-    e1 = float(np.mean((b - moved)[inner] ** 2))
-    return float(np.hypot(dy, dx)), (1.0 - e1 / e0) if e0 > 0 else 0.0
+    taper = _hann(a.shape)
+    starts = [np.array(phase_shift(a, b, upsample=upsample)[:2]),
+              np.array(phase_shift((a - a.mean()) * taper, (b - b.mean()) * taper,
+                                   upsample=upsample)[:2])]
+    m = int(np.ceil(max(float(np.abs(d).max()) for d in starts))) + 1
+    inner = (slice(m, a.shape[0] - m), slice(m, a.shape[1] - m))
+    w = np.broadcast_to(np.asarray(weight, dtype=np.float64), a.shape)[inner]
+    coef = ndimage.spline_filter(a, order=SPLINE)
+
+    def moved(d: np.ndarray) -> np.ndarray:
+        return ndimage.shift(coef, d, order=SPLINE, mode="nearest", prefilter=False)
+
+    def energy(d: np.ndarray) -> float:
+        return _trimmed((b - moved(d))[inner] ** 2 * w)[0]
+
+    if a[inner].size < max(MIN_INNER, MIN_INNER_SHARE * a.size):
+        return np.zeros(2), 0.0, 0.0, inner  # too little left to judge
+    best, e1 = np.zeros(2), energy(np.zeros(2))
+    for d in starts:
+        for _ in range(REFINE_STEPS):  # after − moved(d + Δ) ≈ r + ∇moved·Δ: least squares in Δ
+            mv = moved(d)
+            r = (b - mv)[inner]
+            z2 = r * r * w
+            keep = w * (z2 <= _trimmed(z2)[1])
+            gy, gx = (g[inner] for g in np.gradient(mv))
+            h = np.array([[np.sum(keep * gy * gy), np.sum(keep * gy * gx)],
+                          [np.sum(keep * gy * gx), np.sum(keep * gx * gx)]])
+            if not np.linalg.det(h) > 0:
+                break
+            step = -np.linalg.solve(h, [np.sum(keep * gy * r), np.sum(keep * gx * r)])
+            d = d + step
+            if np.abs(d).max() > m - 1 or np.abs(step).max() < 0.01:
+                break
+        if np.abs(d).max() <= m - 1 and (e := energy(d)) < e1:
+            best, e1 = d, e
+    for _ in range(POLISH_STEPS):  # the trimmed energy has shallow local minima: step downhill on
+        # a grid of POLISH cells round the best shift until none of the 8 neighbours is lower
+        trials = [best + POLISH * np.array([i, j]) for i in (-1, 0, 1) for j in (-1, 0, 1)
+                  if (i or j) and np.abs(best + POLISH * np.array([i, j])).max() <= m - 1]
+        lower = min(((energy(t), i) for i, t in enumerate(trials)), default=(e1, -1))
+        if not lower[0] < e1:
+            break
+        best, e1 = trials[lower[1]], lower[0]
+    # the energy without a shift over the same cells: those the shift fits (a feature that does
+    # not move with the field, or a local change, is left out of both)
+    z2 = (b - moved(best))[inner] ** 2 * w
+    kept = z2 <= _trimmed(z2)[1]
+    e0 = float(np.mean(((b - a)[inner] ** 2 * w)[kept]))
+    return best, e0, e1, inner
+
+
+def explained_shift(before: np.ndarray, after: np.ndarray, upsample: int = 10,
+                    noise: np.ndarray | float | None = None) -> tuple[float, float]:
+    """Whole-field shift (in grid units) from `before` to `after` and the share of their
+    difference's energy that the shift explains, over the TRIM share of the inner cells that fit
+    best (fit_shift): 1 − E1 / E0 of the residual energies after the shift and without one. With
+    `noise` (the variance of after − before per cell, or one for all) the energies are in noise
+    units and the share is of the energy above the noise floor, (E0 − E1) / (E0 − floor), so a
+    stage jump at a low dose is explained as well as at a high one; a change that stands out of
+    the noise on too few cells (E0 below twice the floor) is not a whole-field shift. A stage
+    jump is explained almost wholly, a local change hardly at all, whatever shift is reported."""
+    a = np.asarray(before, dtype=np.float64)
+    b = np.asarray(after, dtype=np.float64)
+    weight = np.broadcast_to(1.0 if noise is None else 1.0 / np.maximum(
+        np.asarray(noise, np.float64), 1e-12), a.shape)
+    # a large grid is judged on its central FIT_CELLS × FIT_CELLS cells (plenty of texture; the
+    # fit's cost grows with the cells)
+    cy, cx = (max((n - FIT_CELLS) // 2, 0) for n in a.shape)
+    part = (slice(cy, cy + FIT_CELLS), slice(cx, cx + FIT_CELLS))
+    a, b, weight = a[part], b[part], weight[part]
+    floor = 0.0 if noise is None else trimmed_noise_floor()
+    if noise is not None and not _trimmed((b - a) ** 2 * weight)[0] > SPREAD * floor:
+        # the best-fitting cells are noise already: a change on a few cells, never a whole-field
+        # shift (and the fit is skipped)
+        return float(np.hypot(*phase_shift(a, b, upsample=upsample)[:2])), 0.0
+    d, e0, e1, inner = fit_shift(a, b, weight, upsample)
+    size = float(np.hypot(*d))
+    if a[inner].size < max(MIN_INNER, MIN_INNER_SHARE * a.size):
+        return size, 0.0  # too little left to judge: not a whole-field shift
+    if not e0 > 2.0 * floor:
+        return size, 0.0
+    return size, float(np.clip((e0 - e1) / (e0 - floor), 0.0, 1.0))

@@ -298,7 +298,11 @@ class _Scanner:
             r = lo + j
             if r - w0 < 0 or r + w0 > len(xn):
                 continue
-            shift, explained = explained_shift(xn[r - w0: r].mean(0), xn[r: r + w0].mean(0))
+            before, after = xn[r - w0: r].mean(0), xn[r: r + w0].mean(0)
+            # shot noise of after − before (var of a tile sum = gain × mean, w0 frames each side)
+            noise = self.gain * (before + after) / w0 if self.gain is not None \
+                and np.all(before > 0) and np.all(after > 0) else None
+            shift, explained = explained_shift(before, after, noise=noise)
             if explained >= JUMP_EXPLAINED:
                 self.f["jump"][self.scored + j] = shift * self.tile
 
