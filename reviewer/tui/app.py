@@ -249,7 +249,10 @@ class ReviewApp(SeeingMixin, GuardMixin, ScanMixin, ReviewActions, App):
     def go(self, frame: int, *, jumped_to: str | None = None) -> None:
         """Move the cursor; the current event becomes the one jumped to, else the one viewed at
         the frame (None when there is none: decision keys then change nothing)."""
-        self.frame = int(min(max(frame, 0), self.movie.n_frames - 1))
+        frame = int(min(max(frame, 0), self.movie.n_frames - 1))
+        if frame != self.frame:
+            self.clear_said()
+        self.frame = frame
         if jumped_to is not None:
             self.current_id = jumped_to
         else:
