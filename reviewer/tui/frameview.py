@@ -168,9 +168,12 @@ class FrameView(frame_pixels.TruePixels, Widget):
         ``shape``); the change and average views use ``window`` frames either side. Frames are
         read and reduced here (raising what the movie raises when the frame cannot be read) when
         the pane has a size, else when it is drawn."""
+        index = int(index)
+        if (movie is self._source and index == self._index and int(window) == self._window
+                and self._view_key is not None and self.unreadable is None):
+            return  # shown already (a decision key shows the frame again): nothing to draw
         if movie is not self._source:
             self._use_source(movie, ReducedFrames(movie, prefetch=self._prefetch))
-        index = int(index)
         if index != self._index:
             self._direction = 1 if index > self._index else -1
         self._index, self._window = index, int(window)
@@ -220,8 +223,10 @@ class FrameView(frame_pixels.TruePixels, Widget):
 
     def set_mark(self, x: float | None, y: float | None = None) -> None:
         """Mark a spot in frame pixels; ``set_mark(None)`` removes it."""
-        self._mark = None if x is None or y is None else (float(x), float(y))
-        self._invalidate()
+        mark = None if x is None or y is None else (float(x), float(y))
+        if mark != self._mark:
+            self._mark = mark
+            self._invalidate()
 
     def contrast_wider(self) -> None:
         """Clip fewer pixels: a wider range of values, less contrast."""

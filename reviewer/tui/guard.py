@@ -80,7 +80,8 @@ class GuardMixin:
         self.alert_text = one_line(text)
         self.alert_kind = kind
         line = self.query_one("#alert", AlertLine)
-        line.update(Text(self.alert_text, no_wrap=True, overflow="ellipsis"))
+        # one row always: no layout pass (it would cost more than the rest of a key together)
+        line.update(Text(self.alert_text, no_wrap=True, overflow="ellipsis"), layout=False)
         line.set_classes(kind)
         if self._alert_timer is not None:
             self._alert_timer.stop()
@@ -93,7 +94,7 @@ class GuardMixin:
             self._alert_timer.stop()
             self._alert_timer = None
         line = self.query_one("#alert", AlertLine)
-        line.update("")
+        line.update("", layout=False)
         line.set_classes("idle")
 
     def clear_said(self) -> None:
