@@ -40,7 +40,7 @@ from pathlib import Path
 import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from bench_keys import Probe, status, tmux  # noqa: E402
+from bench_keys import Probe, gone, reap, status, tmux  # noqa: E402
 
 TIMEOUT_S = 30.0  # the main branch took seconds per step of the change view at 4096²
 TARGETS_MS = {"step": 50.0, "change step": 150.0, "view (t)": 150.0}
@@ -136,6 +136,7 @@ def run_size(side: int, n: int, args, work: Path,
     results: dict[str, list[float]] = {k: [] for k in TARGETS_MS}
     failures = 0
     mem: dict = {}
+    pid = None
     try:
         tmux(sock, "new-session", "-d", "-s", "bench", "-x", "200", "-y", "60", cmd)
         end = time.monotonic() + 60
@@ -168,9 +169,13 @@ def run_size(side: int, n: int, args, work: Path,
             press(None, "right")
         mem = memory_kb(pid)
         probe.press("q")
+        gone(pid, 10.0)  # the terminal stays until the review has quit (it saves on the way out)
         probe.close()
     finally:
         subprocess.run(["tmux", "-L", sock, "kill-server"], capture_output=True)
+        if not reap(pid):
+            print("  the review had not exited 10 s after q, nor 5 s after its terminal closed: killed")
+            failures += 1
     return results, mem, failures
 
 

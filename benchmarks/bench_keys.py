@@ -25,10 +25,12 @@ look is); which one is printed. Frames are read through the operating system's p
 from __future__ import annotations
 
 import argparse
+import contextlib
 import os
 import queue
 import shlex
 import shutil
+import signal
 import subprocess
 import sys
 import tempfile
@@ -47,6 +49,30 @@ ROUNDS = {"frame step (right/left)": ["right", "left"], "jump (n/p)": ["n", "p"]
 def tmux(sock: str, *args: str) -> str:
     return subprocess.run(["tmux", "-L", sock, "-f", "/dev/null", *args], capture_output=True,
                           text=True, timeout=10).stdout
+
+
+def gone(pid: int | None, wait_s: float) -> bool:
+    """True when the process has exited (or there is none) within wait_s."""
+    end = time.monotonic() + wait_s
+    while pid is not None:
+        try:
+            os.kill(pid, 0)
+        except ProcessLookupError:
+            return True
+        if time.monotonic() > end:
+            return False
+        time.sleep(0.05)
+    return True
+
+
+def reap(pid: int | None, wait_s: float = 5.0) -> bool:
+    """After the tmux server is gone: True when the review process has exited within wait_s;
+    else it is killed (SIGKILL, so that it takes no CPU from the next run) and False."""
+    if gone(pid, wait_s):
+        return True
+    with contextlib.suppress(ProcessLookupError):
+        os.kill(pid, signal.SIGKILL)
+    return False
 
 
 def is_status(line: str | bytes) -> bool:
@@ -161,8 +187,10 @@ def main(argv: list[str] | None = None) -> int:
                     shlex.quote(movie)])
     results: dict[str, list[float]] = {}
     failures: dict[str, int] = {}
+    pid = None
     try:
         tmux(sock, "new-session", "-d", "-s", "bench", "-x", "200", "-y", "60", cmd)
+        pid = int(tmux(sock, "display-message", "-p", "-t", "bench", "#{pane_pid}").strip())
         end = time.monotonic() + 30
         while "pending" not in status(sock) and time.monotonic() < end:
             time.sleep(0.05)
@@ -179,9 +207,11 @@ def main(argv: list[str] | None = None) -> int:
                 samples.append(ms)
             results[kind] = samples
         watcher.press("q")
+        gone(pid, 10.0)  # the terminal stays until the review has quit (it saves on the way out)
         watcher.close()
     finally:
         subprocess.run(["tmux", "-L", sock, "kill-server"], capture_output=True)
+        exited = reap(pid)
         shutil.rmtree(work, ignore_errors=True)
     everything = [ms for s in results.values() for ms in s]
     print(f"key-to-repaint in a 200x60 tmux pane, {movie}; the probe captures "
@@ -202,7 +232,9 @@ def main(argv: list[str] | None = None) -> int:
     print(f"  {'all keys':<26} n={len(everything):3d}  median {med:6.1f} ms  "
           f"p90 {np.percentile(everything, 90):6.1f} ms  failures {lost}")
     print(f"median / target ({TARGET_MS:g} ms) = {med / TARGET_MS:.2f}")
-    return 1 if lost else 0
+    if not exited:
+        print("the review had not exited 10 s after q, nor 5 s after its terminal closed: killed")
+    return 1 if lost or not exited else 0
 
 
 if __name__ == "__main__":
