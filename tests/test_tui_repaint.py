@@ -133,4 +133,8 @@ async def test_a_message_goes_when_the_cursor_moves_on_and_never_moves_the_frame
         await _press(pilot, "u")
         await _press(pilot, "t")  # another view of the same frame is not moving on
         assert "nothing to undo" in app.alert_text
+        await _press(pilot, "space ]")  # playing: what the speed key said stays while frames pass
+        start = app.frame
+        await pilot.pause(0.5)
+        assert app.frame > start and app.alert_text.startswith("speed")
         await app.action_quit()

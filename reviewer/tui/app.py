@@ -250,7 +250,7 @@ class ReviewApp(SeeingMixin, GuardMixin, ScanMixin, ReviewActions, App):
         """Move the cursor; the current event becomes the one jumped to, else the one viewed at
         the frame (None when there is none: decision keys then change nothing)."""
         frame = int(min(max(frame, 0), self.movie.n_frames - 1))
-        if frame != self.frame:
+        if frame != self.frame and not self.playing:  # playback's steps leave what a key said
             self.clear_said()
         self.frame = frame
         if jumped_to is not None:
