@@ -138,3 +138,39 @@ async def test_a_message_goes_when_the_cursor_moves_on_and_never_moves_the_frame
         await pilot.pause(0.5)
         assert app.frame > start and app.alert_text.startswith("speed")
         await app.action_quit()
+
+
+@sync
+async def test_an_input_thread_left_running_by_its_driver_is_ended():
+    # the loop below is Textual's input loop in miniature (drivers/linux_driver.py run_input_thread:
+    # `while not self.exit_event.is_set()`), reading end-of-file of a terminal that went away
+    import threading
+
+    from textual.app import App
+    from textual.driver import Driver
+
+    from reviewer.tui.app import stop_input_threads
+
+    class Gone(Driver):
+        def __init__(self, app) -> None:
+            super().__init__(app)
+            self.exit_event = threading.Event()
+
+        def write(self, data: str) -> None: ...
+        def start_application_mode(self) -> None: ...
+        def disable_input(self) -> None: ...
+        def stop_application_mode(self) -> None: ...
+
+        def read_loop(self) -> None:
+            while not self.exit_event.is_set():
+                threading.Event().wait(0.01)
+
+    driver = Gone(App())
+    thread = threading.Thread(target=driver.read_loop, name="textual-input")
+    thread.start()
+    try:
+        assert stop_input_threads() == 1
+        assert not thread.is_alive()
+    finally:
+        driver.exit_event.set()
+        thread.join()
