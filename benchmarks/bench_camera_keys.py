@@ -6,9 +6,12 @@ Per size (SIDE:FRAMES) a uint16 .npy movie is written once into a temporary fold
 with Gaussian-approximated shot noise, a dark patch appearing halfway), scanned once into a fresh
 REVIEWER_CACHE_DIR (so the review opens warm and no background scan competes), and reviewed in a
 private tmux server. The presses use the control-mode probe of benchmarks/bench_keys.py (key sent,
-then the pane asked for every 2 ms until the status line changed) and, since the status line alone
+then the status line's row asked for every 2 ms until it changed) and, since the status line alone
 can change before a slow frame pane, the press ends only when the frame pane's cells (characters and
-colours: the top 50 rows from `capture-pane -e`) differ from before too. In this order:
+colours, from `capture-pane -e`) differ from before too: first a few sampled rows of the frame
+(a row with colours costs the tmux server ~1.3 ms to capture), and only when none of them changed
+all of the top 50 rows (~55 ms of tmux's time, during which it reads nothing the app writes: the
+first version captured those 50 rows on every press and timed that too). In this order:
 - "step": `right` pressed --rounds times in the frame view, each onto a frame never shown before;
 - "change step": `t` into the what-changed view, then `right` --rounds times (each step slides the
   before / after windows onto a frame never read before);
@@ -37,7 +40,7 @@ from pathlib import Path
 import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from bench_keys import Probe, status, tmux  # noqa: E402
+from bench_keys import Probe, gone, reap, status, tmux  # noqa: E402
 
 TIMEOUT_S = 30.0  # the main branch took seconds per step of the change view at 4096²
 TARGETS_MS = {"step": 50.0, "change step": 150.0, "view (t)": 150.0}
@@ -64,16 +67,28 @@ def write(path: Path, n: int, side: int) -> None:
     os.replace(tmp, path)
 
 
-def frame_cells(probe: Probe, rows: int = 50) -> list[bytes]:
+FRAME_ROWS = 50  # the top rows of the 200x60 pane, where the frame view is
+SAMPLED_ROWS = (12, 25, 37)  # inside the frame view's image at 200x60 (square movies fill its height)
+
+
+def frame_cells(probe: Probe, rows: int = FRAME_ROWS) -> list[bytes]:
     """The top rows of the pane with their colours (the frame view's part; compared as bytes)."""
     return probe.command(f"capture-pane -e -p -t bench -E {rows - 1}")
 
 
+def sampled_cells(probe: Probe) -> list[list[bytes]]:
+    """A few rows of the frame view with their colours, one capture each."""
+    return [probe.command(f"capture-pane -e -p -t bench -S {r} -E {r}") for r in SAMPLED_ROWS]
+
+
 def press_until_drawn(probe: Probe, key: str) -> float | None:
     """Milliseconds from sending the key until the status line and the frame pane both changed.
-    The status line is polled (cheap, text only); the coloured frame rows, costly for the tmux
-    server to capture, are looked at only once the status line has changed."""
+    The status line's row is polled (cheap, text only); the coloured frame rows, costly for the
+    tmux server to capture, are looked at only once the status line has changed: the sampled rows,
+    and all of them only when no sampled row changed."""
+    probe.row = None
     before = probe.status()
+    sampled = sampled_cells(probe)
     cells = frame_cells(probe)
     t0 = time.perf_counter()
     probe.command(f"send-keys -t bench {key}")
@@ -81,7 +96,7 @@ def press_until_drawn(probe: Probe, key: str) -> float | None:
     while time.perf_counter() - t0 < TIMEOUT_S:
         status_seen = status_seen or probe.status() != before
         if status_seen:
-            if frame_cells(probe) != cells:
+            if sampled_cells(probe) != sampled or frame_cells(probe) != cells:
                 return (time.perf_counter() - t0) * 1e3
             time.sleep(0.005)
         time.sleep(0.002)
@@ -121,6 +136,7 @@ def run_size(side: int, n: int, args, work: Path,
     results: dict[str, list[float]] = {k: [] for k in TARGETS_MS}
     failures = 0
     mem: dict = {}
+    pid = None
     try:
         tmux(sock, "new-session", "-d", "-s", "bench", "-x", "200", "-y", "60", cmd)
         end = time.monotonic() + 60
@@ -153,9 +169,13 @@ def run_size(side: int, n: int, args, work: Path,
             press(None, "right")
         mem = memory_kb(pid)
         probe.press("q")
+        gone(pid, 10.0)  # the terminal stays until the review has quit (it saves on the way out)
         probe.close()
     finally:
         subprocess.run(["tmux", "-L", sock, "kill-server"], capture_output=True)
+        if not reap(pid):
+            print("  the review had not exited 10 s after q, nor 5 s after its terminal closed: killed")
+            failures += 1
     return results, mem, failures
 
 

@@ -273,16 +273,22 @@ def test_review_in_a_terminal_that_never_answers_starts_at_once(tmp_path):
     print(f"UI started {started - asked:.2f} s after the question")
 
 
+async def _show_kitty(app, fv, pilot) -> list[str]:
+    """Show a 96 x 144 ramp in a Kitty frame view; what is written to the terminal from then on."""
+    sent: list[str] = []
+    app._driver.write = sent.append
+    fv.show(np.arange(96 * 144, dtype=np.uint16).reshape(96, 144))
+    await pilot.pause()
+    await pilot.pause()
+    return sent
+
+
 @sync
 async def test_the_picture_is_sent_to_the_terminal_after_the_repaint():
     fv = FrameView(system="truecolor", graphics="kitty", cell_px=(4, 8), prefetch=False)
     app = Pane(fv)
     async with app.run_test(size=(40, 14)) as pilot:
-        sent: list[str] = []
-        app._driver.write = sent.append
-        fv.show(np.arange(96 * 144, dtype=np.uint16).reshape(96, 144))
-        await pilot.pause()
-        await pilot.pause()
+        sent = await _show_kitty(app, fv, pilot)
         pictures = [s for s in sent if "\x1b_G" in s]
         assert pictures, "nothing sent"
         keys, rgb = decode_kitty(pictures[-1])
@@ -292,3 +298,35 @@ async def test_the_picture_is_sent_to_the_terminal_after_the_repaint():
         await pilot.pause()
         await pilot.pause()
         assert any("a=d" in s for s in sent)  # the picture is taken away for the placeholder
+
+
+@sync
+async def test_the_kitty_picture_goes_while_a_dialog_covers_it_and_comes_back_after():
+    # Kitty pictures lie over the text (kitty's graphics protocol: a=d deletes; common practice,
+    # no source for the layering): a dialog pushed over the frame must not show under the picture
+    from textual.screen import ModalScreen
+    from textual.widgets import Static
+
+    class Dialog(ModalScreen):
+        def compose(self):
+            yield Static("a dialog")
+
+    fv = FrameView(system="truecolor", graphics="kitty", cell_px=(4, 8), prefetch=False)
+    app = Pane(fv)
+    async with app.run_test(size=(40, 14)) as pilot:
+        sent = await _show_kitty(app, fv, pilot)
+        assert any("a=T" in s for s in sent)
+        sent.clear()
+        app.push_screen(Dialog())
+        await pilot.pause()
+        await pilot.pause()
+        assert any("a=d" in s for s in sent) and not any("a=T" in s for s in sent)
+        sent.clear()
+        app.pop_screen()
+        await pilot.pause()
+        await pilot.pause()
+        await pilot.pause()
+        pictures = [s for s in sent if "a=T" in s]
+        assert pictures, "the picture was not drawn again"
+        _, rgb = decode_kitty(pictures[-1])
+        assert rgb.shape == (96, 144, 3)

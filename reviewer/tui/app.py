@@ -249,7 +249,10 @@ class ReviewApp(SeeingMixin, GuardMixin, ScanMixin, ReviewActions, App):
     def go(self, frame: int, *, jumped_to: str | None = None) -> None:
         """Move the cursor; the current event becomes the one jumped to, else the one viewed at
         the frame (None when there is none: decision keys then change nothing)."""
-        self.frame = int(min(max(frame, 0), self.movie.n_frames - 1))
+        frame = int(min(max(frame, 0), self.movie.n_frames - 1))
+        if frame != self.frame and not self.playing:  # playback's steps leave what a key said
+            self.clear_said()
+        self.frame = frame
         if jumped_to is not None:
             self.current_id = jumped_to
         else:
@@ -302,6 +305,7 @@ class ReviewApp(SeeingMixin, GuardMixin, ScanMixin, ReviewActions, App):
         try:
             return super().run(*args, **kwargs)
         finally:
+            stop_input_threads()
             if self.said_on_exit:
                 print(self.said_on_exit, file=sys.stderr)
 
@@ -312,6 +316,27 @@ class ReviewApp(SeeingMixin, GuardMixin, ScanMixin, ReviewActions, App):
             self.quit_note = self.kept_note(self.session.close_error)
         self.cancel_scan()
         self.exit(return_code=128 + signum)
+
+
+def stop_input_threads(wait_s: float = 1.0) -> int:
+    """End the terminal input threads Textual's drivers left running; how many there were.
+
+    A driver ends its input thread (not a daemon) when the app stops; when the terminal went away
+    while the app was quitting (a closed window, a dropped SSH link), it did not, and the thread
+    kept the finished process alive, reading end-of-file in a loop on a whole core."""
+    import threading
+
+    from textual.driver import Driver
+
+    stopped = 0
+    for thread in threading.enumerate():
+        owner = getattr(getattr(thread, "_target", None), "__self__", None)
+        event = getattr(owner, "exit_event", None)
+        if isinstance(owner, Driver) and thread.is_alive() and isinstance(event, threading.Event):
+            event.set()
+            thread.join(wait_s)
+            stopped += 1
+    return stopped
 
 
 def make_app(movie, *, fps: float | None = None, keymap: str | None = None,

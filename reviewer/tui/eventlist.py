@@ -15,7 +15,7 @@ from rich.segment import Segment
 from rich.style import Style
 from textual import events
 from textual.binding import Binding
-from textual.geometry import Size
+from textual.geometry import Region, Size
 from textual.message import Message
 from textual.scroll_view import ScrollView
 from textual.strip import Strip
@@ -168,9 +168,22 @@ class EventList(ScrollView, can_focus=True):
 
     # ----- data --------------------------------------------------------------------------------
     def set_rows(self, events: Sequence[object]) -> None:
-        """Replace all rows (kept as given; formatted only when shown)."""
-        self._all = list(events)
-        self._apply_filter()
+        """Replace all rows (kept as given; formatted only when shown). The same events in the same
+        order (a decision changes one in place) repaint only the shown rows whose text changed."""
+        events = list(events)
+        same = (self._filter is None and self.is_mounted and len(events) == len(self._all)
+                and all(a is b for a, b in zip(events, self._all, strict=True)))
+        self._all = events
+        if not same:
+            self._apply_filter()
+            return
+        self._rows = events
+        old, self._cache = self._cache, {}
+        top = round(self.scroll_y)
+        for row in range(top, min(top + self.size.height - self._head, len(events))):
+            cells = self._cache[row] = row_cells(events[row], self.time_decimals)
+            if old.get(row) != cells:
+                self._refresh_row(row)
 
     def set_filter(self, name: str = "", test=None) -> None:
         """Show only the rows for which test(row) is true, headed by `name`; no test: every row."""
@@ -241,14 +254,25 @@ class EventList(ScrollView, can_focus=True):
     def _move_to(self, row: int) -> None:
         if not self._rows:
             return
-        self._cursor = min(max(row, 0), len(self._rows) - 1)
+        before, self._cursor = self._cursor, min(max(row, 0), len(self._rows) - 1)
         top = round(self.scroll_y)
         visible = self._page_rows() + 1
         if self._cursor < top:
             self.scroll_to(y=self._cursor, animate=False, immediate=True)
         elif self._cursor >= top + visible:
             self.scroll_to(y=self._cursor - visible + 1, animate=False, immediate=True)
+        else:  # no scroll: only the rows the cursor left and reached are drawn again
+            if self._cursor != before:
+                self._refresh_row(before)
+                self._refresh_row(self._cursor)
+            return
         self.refresh()
+
+    def _refresh_row(self, row: int) -> None:
+        """Repaint one row where it is shown (nothing when it is scrolled out of view)."""
+        y = self._head + row - round(self.scroll_y)
+        if self._head <= y < self.size.height:
+            self.refresh(Region(0, y, self.size.width, 1))
 
     def action_cursor(self, delta: int) -> None:
         self._move_to(self._cursor + delta)

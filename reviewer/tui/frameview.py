@@ -8,6 +8,11 @@ Frames are reduced to the pane's resolution as they are read (block means, tui/f
 in an LRU with the window sums, so one step of the cursor reads one new frame per window; the
 percentiles and the noise of the change view are taken on the reduced image, the one that is shown.
 The neighbouring frames are reduced in a worker thread while the user looks.
+
+Only the rows that differ from the last drawing are repainted (``_exchange_repaint_regions``): a
+decision key leaves the frame as it was and sends nothing of it to the terminal, a step repaints the
+rows of the image and not its margins. Every byte written is also a byte the terminal (tmux) has to
+parse before the keypress shows.
 """
 
 from __future__ import annotations
@@ -20,6 +25,7 @@ from rich.segment import Segment
 from rich.style import Style
 from scipy import ndimage
 from textual.filter import ANSIToTruecolor, LineFilter
+from textual.geometry import Region
 from textual.strip import Strip
 from textual.widget import Widget
 
@@ -94,7 +100,12 @@ class FrameView(frame_pixels.TruePixels, Widget):
         self._mark: tuple[float, float] | None = None
         self._strips: list[Strip] | None = None
         self._built_size: tuple[int, int] | None = None
+        # what the last half-block build drew, for repainting only the rows that changed:
+        # (palette, system, canvas of palette indices, marked cell); None when unknown
+        self._drawn: tuple | None = None
+        self._row_changed: np.ndarray | None = None  # rows of the last build that differ from the one before
         self.unreadable: str | None = None  # why the frame could not be shown (placeholder drawn)
+        self._covered = False  # another screen is over ours (the Kitty picture was taken away)
 
     # ----- state -------------------------------------------------------------------------------
     @property
@@ -157,9 +168,12 @@ class FrameView(frame_pixels.TruePixels, Widget):
         ``shape``); the change and average views use ``window`` frames either side. Frames are
         read and reduced here (raising what the movie raises when the frame cannot be read) when
         the pane has a size, else when it is drawn."""
+        index = int(index)
+        if (movie is self._source and index == self._index and int(window) == self._window
+                and self._view_key is not None and self.unreadable is None):
+            return  # shown already (a decision key shows the frame again): nothing to draw
         if movie is not self._source:
             self._use_source(movie, ReducedFrames(movie, prefetch=self._prefetch))
-        index = int(index)
         if index != self._index:
             self._direction = 1 if index > self._index else -1
         self._index, self._window = index, int(window)
@@ -175,6 +189,23 @@ class FrameView(frame_pixels.TruePixels, Widget):
             self._zoom, self._centre = 1.0, None
         self._source, self._frames, self._shape = source, frames, shape
         self.unreadable = None
+
+    def on_mount(self) -> None:
+        if self.graphics == "kitty":  # a Kitty picture lies over the text: covered, it must go
+            self.app.screen_change_signal.subscribe(self, self._screen_changed)
+
+    def _screen_changed(self, screen) -> None:
+        """Another screen (a dialog, the help) came over ours: take the picture away (the
+        terminal would keep showing it over the dialog); ours is back: draw it again."""
+        if screen is not self.screen:
+            from reviewer.tui.graphics import kitty_delete
+
+            self._sequence = kitty_delete()
+            self._send_graphics()
+            self._covered = True
+        elif self._covered:
+            self._covered = False
+            self._invalidate()  # built again, and the picture sent after the repaint
 
     def on_unmount(self) -> None:
         if self._frames is not None:
@@ -192,8 +223,10 @@ class FrameView(frame_pixels.TruePixels, Widget):
 
     def set_mark(self, x: float | None, y: float | None = None) -> None:
         """Mark a spot in frame pixels; ``set_mark(None)`` removes it."""
-        self._mark = None if x is None or y is None else (float(x), float(y))
-        self._invalidate()
+        mark = None if x is None or y is None else (float(x), float(y))
+        if mark != self._mark:
+            self._mark = mark
+            self._invalidate()
 
     def contrast_wider(self) -> None:
         """Clip fewer pixels: a wider range of values, less contrast."""
@@ -397,6 +430,7 @@ class FrameView(frame_pixels.TruePixels, Widget):
         return [Segment(g, style) for g in MARK_GLYPHS]
 
     def _build(self, rows: int, cols: int) -> list[Strip]:
+        previous, self._drawn, self._row_changed = self._drawn, None, None  # set by half-blocks
         if self.unreadable is None:
             try:
                 canvas, place = self.canvas(rows, cols)
@@ -409,7 +443,8 @@ class FrameView(frame_pixels.TruePixels, Widget):
             except Exception as exc:  # noqa: BLE001 - any reader failure: say so in the pane
                 self.unreadable = " ".join(f"frame {self._index}: {exc}".split())
             else:
-                self.call_after_refresh(self._send_graphics)
+                if not self._covered:  # else sent when our screen is back (_screen_changed)
+                    self.call_after_refresh(self._send_graphics)
                 blank = Style.from_color(bgcolor=Color.from_rgb(0, 0, 0))
                 return [Strip([Segment(" " * cols, blank)], cols) for _ in range(rows)]
         if self.unreadable is not None:
@@ -423,6 +458,7 @@ class FrameView(frame_pixels.TruePixels, Widget):
         palette = "change" if self._mode == "change" else "grey"
         table = render.segment_table(palette, system)
         cell = self.mark_cell(place)
+        self._note_drawn(previous, (palette, system, canvas, cell), rows)
         if cell is None:
             return render.image_to_strips(canvas, table, render.segment_ids(palette, system))
         lines = render.image_to_rows(canvas, table)
@@ -433,15 +469,59 @@ class FrameView(frame_pixels.TruePixels, Widget):
                 lines[r + dr][c + dc] = seg
         return [Strip(line, cols) for line in lines]
 
-    def render_line(self, y: int) -> Strip:
+    def _note_drawn(self, last: tuple | None, drawn: tuple, rows: int) -> None:
+        """Keep what this half-block build draws (palette, system, canvas, marked cell); mark the
+        rows that differ from the build before it (``last``; None: every row)."""
+        self._drawn = drawn
+        palette, system, canvas, cell = drawn
+        if last is None or last[:2] != (palette, system) or last[2].shape != canvas.shape:
+            return
+        changed = (last[2] != canvas).reshape(rows, 2, -1).any(axis=(1, 2))
+        if last[3] != cell:  # the mark's corners sit on the rows above and below its cell
+            for mark in (last[3], cell):
+                if mark is not None:
+                    for r in (mark[0] - 1, mark[0] + 1):
+                        if 0 <= r < rows:
+                            changed[r] = True
+        self._row_changed = changed
+
+    def _ensure_strips(self) -> list[Strip]:
         rows, cols = self.size.height, self.size.width
         if self._strips is None or self._built_size != (rows, cols):
+            if self._built_size != (rows, cols):
+                self._drawn = None
             self._strips = self._build(rows, cols)
             self._built_size = (rows, cols)
-        return self._strips[y] if 0 <= y < len(self._strips) else Strip.blank(cols)
+        return self._strips
+
+    def _exchange_repaint_regions(self):
+        """The regions Textual's compositor repaints for this widget (called just before it
+        paints): a refresh of the whole pane becomes the runs of rows whose cells changed since
+        the last build. Any other request, and a build with nothing to compare with, is kept."""
+        regions = super()._exchange_repaint_regions()
+        whole = self.outer_size.region
+        if self._strips is not None or list(regions) != [whole] or self.graphics != "blocks":
+            return regions
+        self._ensure_strips()
+        changed = self._row_changed
+        self._row_changed = None
+        if changed is None or len(changed) != whole.height:
+            return regions
+        runs = []
+        ys = np.flatnonzero(changed)
+        if len(ys):
+            breaks = np.flatnonzero(np.diff(ys) > 1)
+            for a, b in zip(np.r_[0, breaks + 1], np.r_[breaks, len(ys) - 1], strict=True):
+                runs.append(Region(0, int(ys[a]), whole.width, int(ys[b] - ys[a] + 1)))
+        return runs
+
+    def render_line(self, y: int) -> Strip:
+        strips = self._ensure_strips()
+        return strips[y] if 0 <= y < len(strips) else Strip.blank(self.size.width)
 
     def on_resize(self) -> None:
-        self._invalidate()
+        if self._built_size != (self.size.height, self.size.width):
+            self._invalidate()  # else the layout's repaint already drew it at this size
 
     def get_line_filters(self) -> Sequence[LineFilter]:
         """Drop Textual's ANSI-to-truecolor filter: our segments only carry 24-bit colours or

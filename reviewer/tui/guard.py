@@ -28,7 +28,9 @@ class Banner(Static):
 
 
 class AlertLine(Static):
-    """One line above the status bar for what just went wrong."""
+    """One line above the status bar for what a key did or what went wrong; always there (empty
+    when there is nothing to say), so a message coming or going moves nothing on the screen (a
+    change of layout would repaint the whole frame pane)."""
 
 
 class GuardMixin:
@@ -78,18 +80,28 @@ class GuardMixin:
         self.alert_text = one_line(text)
         self.alert_kind = kind
         line = self.query_one("#alert", AlertLine)
-        line.update(Text(self.alert_text, no_wrap=True, overflow="ellipsis"))
+        # one row always: no layout pass (it would cost more than the rest of a key together)
+        line.update(Text(self.alert_text, no_wrap=True, overflow="ellipsis"), layout=False)
         line.set_classes(kind)
-        line.display = True
         if self._alert_timer is not None:
             self._alert_timer.stop()
         self._alert_timer = self.set_timer(ALERT_S, self.clear_alert)
 
     def clear_alert(self) -> None:
         self.alert_text = ""
+        self.alert_kind = ""
+        if self._alert_timer is not None:
+            self._alert_timer.stop()
+            self._alert_timer = None
         line = self.query_one("#alert", AlertLine)
-        line.update("")
-        line.display = False
+        line.update("", layout=False)
+        line.set_classes("idle")
+
+    def clear_said(self) -> None:
+        """The cursor moved on: what a key said about the last place goes (an error stays until
+        its time is up or the next change is written)."""
+        if self.alert_text and self.alert_kind != "error":
+            self.clear_alert()
 
     def write(self, what: str, fn, *args, **kwargs):
         """Run one session change; (True, result), or (False, None) with an alert when the session

@@ -68,7 +68,7 @@ def fit_fields(fields: dict[str, Text], width: int) -> Text:
 
 
 class StatusLine(Widget):
-    """Redrawn in place (refresh only, no layout) on every key."""
+    """Redrawn in place (refresh only, no layout) when a key changed what it says."""
 
     DEFAULT_CSS = "StatusLine { height: 1; }"
 
@@ -101,8 +101,9 @@ class StatusLine(Widget):
         for key in ("mode", "play", "scan"):
             if extras.get(key):
                 f[key] = Text(str(extras[key]))
-        self._fields = f
-        self.refresh()
+        if f != self._fields:  # the same line is not sent to the terminal again
+            self._fields = f
+            self.refresh()
 
     @property
     def plain(self) -> str:

@@ -91,13 +91,17 @@ class Timeline(Widget):
     def set_marks(self, frames: np.ndarray, statuses: list[str]) -> None:
         if len(frames) != len(statuses):
             raise ValueError("frames and statuses differ in length")
-        self._mark_frames = np.asarray(frames, dtype=np.int64)
+        frames = np.asarray(frames, dtype=np.int64)
+        if list(statuses) == self._mark_status and np.array_equal(frames, self._mark_frames):
+            return  # nothing to draw again
+        self._mark_frames = frames
         self._mark_status = list(statuses)
         self._invalidate()
 
     def set_position(self, frame: int) -> None:
-        self._position = int(frame)
-        self._invalidate()
+        if int(frame) != self._position:
+            self._position = int(frame)
+            self._invalidate()
 
     @property
     def position(self) -> int:
@@ -172,7 +176,7 @@ class Timeline(Widget):
             glyph = cells[cursor].text if cursor in best else "\u25b2"  # black up-pointing triangle
             fg = MARKS[best[cursor]][1] if cursor in best else "#ffffff"
             cells[cursor] = Segment(glyph, Style.parse(f"bold {fg} on #3d6690"))
-        return Strip(cells, cols)
+        return Strip(cells, cols).simplify()  # runs of blank cells: one escape sequence each
 
     def render_line(self, y: int) -> Strip:
         rows, cols = self.size.height, self.size.width
