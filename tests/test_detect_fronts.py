@@ -7,7 +7,8 @@ import numpy as np
 from scipy import ndimage, stats
 
 from reviewer.detect import DetectSettings, scan_movie
-from reviewer.detect.fronts import FrontDelay, project, sparse_template, template
+from reviewer.detect.fronts import FrontDelay, front_images, project, sparse_template, template
+from reviewer.detect.reduce import Scratch
 from reviewer.movie import ArrayMovie
 
 
@@ -57,6 +58,22 @@ def test_front_values_match_a_direct_weighted_sum():
         got = np.where((used // 128 == e + 1)[:, None], front[used, 1].reshape(len(used), -1),
                        front[used, 0].reshape(len(used), -1))
         np.testing.assert_allclose(got, direct, rtol=1e-4, atol=1e-3)
+
+
+def test_front_images_are_the_block_sums_skimage_gives():
+    # skimage.measure.block_reduce(np.sum) as the reference; uint16 sums that fit, sums that
+    # would overflow uint16 (float32 path), an edge that does not fill a bin (dropped), b = 4
+    from skimage.measure import block_reduce
+
+    rng = np.random.default_rng(5)
+    sc = Scratch()
+    for top, b in ((200, 2), (200, 4), (40000, 2)):
+        block = rng.integers(0, top, (3, 37, 42)).astype(np.uint16)
+        got = front_images(block, b, sc)
+        h, w = 37 // b * b, 42 // b * b
+        ref = block_reduce(block[:, :h, :w].astype(np.int64), (1, b, b), np.sum)
+        assert got.shape == ref.shape
+        assert np.array_equal(got.astype(np.int64), ref)
 
 
 def test_no_step_where_the_template_changes():
