@@ -7,7 +7,14 @@ import numpy as np
 from scipy import ndimage, stats
 
 from reviewer.detect import DetectSettings, scan_movie
-from reviewer.detect.fronts import FrontDelay, front_images, project, sparse_template, template
+from reviewer.detect.fronts import (
+    FrontDelay,
+    _col_median,
+    front_images,
+    project,
+    sparse_template,
+    template,
+)
 from reviewer.detect.reduce import Scratch
 from reviewer.movie import ArrayMovie
 
@@ -74,6 +81,15 @@ def test_front_images_are_the_block_sums_skimage_gives():
         ref = block_reduce(block[:, :h, :w].astype(np.int64), (1, b, b), np.sum)
         assert got.shape == ref.shape
         assert np.array_equal(got.astype(np.int64), ref)
+
+
+def test_trend_median_is_numpys():
+    # np.median as the reference: odd and even counts, ties (integer values), one row
+    rng = np.random.default_rng(2)
+    for rows in (1, 2, 15, 16):
+        for d in (rng.standard_normal((rows, 300)), rng.integers(0, 3, (rows, 300))):
+            d = d.astype(np.float32)
+            assert np.array_equal(_col_median(d), np.median(d, axis=0))
 
 
 def test_no_step_where_the_template_changes():

@@ -139,6 +139,16 @@ def _mean_rows(imgs: np.ndarray, rows: np.ndarray) -> np.ndarray:
     return imgs[idx].mean(axis=0, dtype=np.float32)
 
 
+def _col_median(d: np.ndarray) -> np.ndarray:
+    """np.median(d, axis=0) of a float32 (rows, T), the same values (the mean of the two middle
+    ones for an even count), by partitioning a transposed copy: 5x faster for 4096 tiles."""
+    k = len(d) // 2
+    p = np.partition(np.ascontiguousarray(d.T), k, axis=1)
+    if len(d) % 2:
+        return p[:, k]
+    return (p[:, :k].max(axis=1) + p[:, k]) / np.float32(2)  # left of k: the smaller half
+
+
 class FrontDelay:
     """Front values for every frame, an epoch at a time: push() the frames' tile sums and front-
     resolution images as they come (non-finite pixels set to 0); it returns, per finished epoch,
@@ -253,9 +263,10 @@ class FrontDelay:
         if n < 4:
             return values
         means = values[: n * TREND_BLOCK].reshape(n, TREND_BLOCK, -1).mean(axis=1)
-        slope = np.median(np.diff(means, axis=0), axis=0) / TREND_BLOCK
+        slope = _col_median(np.diff(means, axis=0)) / TREND_BLOCK
         rows = np.arange(len(values), dtype=np.float32) - (len(values) - 1) / 2
-        values -= (rows[:, None] * slope[None, :]).reshape(values.shape).astype(np.float32)
+        flat = values.reshape(len(values), -1)
+        flat -= rows[:, None] * slope[None, :]
         return values
 
     def inv_sd(self, e: int, gain: float | None, values: np.ndarray) -> np.ndarray:
