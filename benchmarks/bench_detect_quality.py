@@ -1,6 +1,7 @@
 """Detection quality on generated movies with known truth, side by side with two independent peers.
 
     python benchmarks/bench_detect_quality.py [--seed 1] [--frames N] [--keep DIR] [--presets a,b]
+                                              [--scan-args='--no-dim-fronts']
 
 Each preset's movie is written once as an ImageJ TIFF (as the generator writes it for users), then
 each method is timed from that file, reading included:
@@ -59,13 +60,13 @@ def match(true: np.ndarray, found: np.ndarray, tol: int = TOL) -> list[int]:
 
 
 # ---- ours, as a user runs it ---------------------------------------------------------------------
-def ours(path: Path) -> tuple[np.ndarray, np.ndarray, float]:
+def ours(path: Path, extra: tuple[str, ...] = ()) -> tuple[np.ndarray, np.ndarray, float]:
     cache = tempfile.mkdtemp(prefix="bench-quality-cache-")  # fresh: nothing to reuse
     out = Path(cache) / "candidates.csv"
     env = {**os.environ, "REVIEWER_CACHE_DIR": cache}
     t0 = time.perf_counter()
     subprocess.run([sys.executable, "-m", "reviewer", "scan", str(path), "--fps", "400", "-o",
-                    str(out), "--force"], check=True, capture_output=True, env=env)
+                    str(out), "--force", *extra], check=True, capture_output=True, env=env)
     seconds = time.perf_counter() - t0
     with open(out, newline="", encoding="utf-8") as f:
         rows = list(csv.DictReader(f))
@@ -150,6 +151,8 @@ def main() -> None:
                     help="folder for the generated movies, reused on the next run (default: a "
                          "temporary folder, removed at the end)")
     ap.add_argument("--presets", default="high_dose,low_dose,very_low_dose,step_flow,idle")
+    ap.add_argument("--scan-args", default="", metavar="ARGS",
+                    help="more options for our scan, e.g. --scan-args=--no-dim-fronts")
     a = ap.parse_args()
     folder = a.keep or Path(tempfile.mkdtemp(prefix="bench-quality-"))
     folder.mkdir(parents=True, exist_ok=True)
@@ -172,7 +175,7 @@ def main() -> None:
             with open(path, "rb") as f:  # into the page cache, the same for every method
                 while f.read(1 << 24):
                     pass
-            frames, kinds, t = ours(path)
+            frames, kinds, t = ours(path, tuple(a.scan_args.split()))
             rows.append(dict(method="ours", **score(name, sc.n_frames, truth, frames, kinds, t)))
             t0 = time.perf_counter()
             found = frame_difference(path)

@@ -7,7 +7,15 @@ import numpy as np
 from scipy import ndimage, stats
 
 from reviewer.detect import DetectSettings, scan_movie
-from reviewer.detect.fronts import FrontDelay, project, sparse_template, template
+from reviewer.detect.fronts import (
+    FrontDelay,
+    _col_median,
+    front_images,
+    project,
+    sparse_template,
+    template,
+)
+from reviewer.detect.reduce import Scratch
 from reviewer.movie import ArrayMovie
 
 
@@ -57,6 +65,31 @@ def test_front_values_match_a_direct_weighted_sum():
         got = np.where((used // 128 == e + 1)[:, None], front[used, 1].reshape(len(used), -1),
                        front[used, 0].reshape(len(used), -1))
         np.testing.assert_allclose(got, direct, rtol=1e-4, atol=1e-3)
+
+
+def test_front_images_are_the_block_sums_skimage_gives():
+    # skimage.measure.block_reduce(np.sum) as the reference; uint16 sums that fit, sums that
+    # would overflow uint16 (float32 path), an edge that does not fill a bin (dropped), b = 4
+    from skimage.measure import block_reduce
+
+    rng = np.random.default_rng(5)
+    sc = Scratch()
+    for top, b in ((200, 2), (200, 4), (40000, 2)):
+        block = rng.integers(0, top, (3, 37, 42)).astype(np.uint16)
+        got = front_images(block, b, sc)
+        h, w = 37 // b * b, 42 // b * b
+        ref = block_reduce(block[:, :h, :w].astype(np.int64), (1, b, b), np.sum)
+        assert got.shape == ref.shape
+        assert np.array_equal(got.astype(np.int64), ref)
+
+
+def test_trend_median_is_numpys():
+    # np.median as the reference: odd and even counts, ties (integer values), one row
+    rng = np.random.default_rng(2)
+    for rows in (1, 2, 15, 16):
+        for d in (rng.standard_normal((rows, 300)), rng.integers(0, 3, (rows, 300))):
+            d = d.astype(np.float32)
+            assert np.array_equal(_col_median(d), np.median(d, axis=0))
 
 
 def test_no_step_where_the_template_changes():

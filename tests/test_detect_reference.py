@@ -8,7 +8,7 @@ from scipy import ndimage, stats
 
 from reviewer.detect import DetectSettings, propose, scan_movie
 from reviewer.detect.candidates import _peaks
-from reviewer.detect.drift import phase_shift
+from reviewer.detect.drift import TRIM, phase_shift, trimmed_noise_floor
 from reviewer.detect.scoring import onset_shift
 from reviewer.detect.statistics import step_z, threshold_z
 from reviewer.movie import ArrayMovie, Timing
@@ -62,6 +62,15 @@ def test_onset_split_is_the_single_change_point_ruptures_finds():
 def _texture(shape, rng, counts=60.0):
     base = ndimage.gaussian_filter(rng.standard_normal(shape), 3.0)
     return counts * (1.0 + 0.4 * base / base.std())
+
+
+def test_trimmed_noise_floor_closed_form_matches_scipy_chi2():
+    # E[X; X < q] / TRIM for X ~ χ²₁, q its TRIM quantile: scipy.stats.chi2 (x·f₁ = f₃), and a
+    # Monte Carlo mean of the smallest TRIM share of squared normal draws
+    assert trimmed_noise_floor() == pytest.approx(
+        stats.chi2.cdf(stats.chi2.ppf(TRIM, 1), 3) / TRIM, rel=1e-12)
+    z2 = np.sort(np.random.default_rng(3).standard_normal(1_000_000) ** 2)
+    assert trimmed_noise_floor() == pytest.approx(z2[: int(TRIM * len(z2))].mean(), rel=5e-3)
 
 
 def test_drift_agrees_with_skimage_phase_cross_correlation():

@@ -32,7 +32,8 @@ def register(subparsers) -> None:
                         "--false-alarms (default 1)")
     p.add_argument("--dim-fronts", action="store_true",
                    help="also read each region through its edges: finds sub-pixel advances of dim "
-                        "fronts at very low dose, at 2-2.5x the scan time for frames up to 512²")
+                        "fronts at very low dose, at about 1.5-2.7x the scan time for frames up "
+                        "to 512²")
     p.add_argument("--patterns", action="store_true",
                    help="also test each region for changes of pattern that keep its mean (a lattice "
                         "patch that turns, fringes that shift), on 2x2-binned frames: several "

@@ -28,6 +28,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import ndimage
 
+from reviewer.detect.reduce import Scratch, bin_block
+
 FRONT_PIXELS = 1 << 16  # front image at most this many pixels (frames binned b × b to fit)
 EPOCH = 128  # frames per template (at least 2 × reach)
 FRONT_MIN_W = 8  # the front values are scored with the windows this long or longer
@@ -38,7 +40,6 @@ BLANK_SHARE = 0.5  # a frame whose total is below this share of the bright end i
 HOLD = 24  # a blanked frame holds the mean front values of this many good frames before it
 SAMPLE = 4  # the template is made from every SAMPLE-th frame of its epoch
 KEEP_EPOCHS = 32  # variance sums kept for this many past epochs (scoring lags reading)
-PUT_TILES = 1024  # project() scatters this many tile columns or more with np.put (faster there)
 
 
 def front_bin(shape: tuple[int, int], tile: int) -> int | None:
@@ -49,6 +50,27 @@ def front_bin(shape: tuple[int, int], tile: int) -> int | None:
     while (h // b) * (w // b) > FRONT_PIXELS:
         b *= 2
     return b if b <= tile // 2 and tile % b == 0 else None
+
+
+def front_images(block: np.ndarray, b: int, scratch: Scratch) -> np.ndarray:
+    """(n, H, W) raw frames -> (n, H // b, W // b) sums of b × b pixels, the front resolution: for
+    uint16 frames whose sums fit, uint16 sums by halving rows then columns into `scratch`'s reused
+    buffers (valid until its next use; measured 1.7x faster than float32 bins of 512² frames, and
+    half the bytes the epoch keeps and the projection gathers); else reduce.bin_block's float32.
+    Integer sums are exact, so both give the same values."""
+    n, h, w = block.shape
+    if block.dtype != np.uint16 or not block.size or int(block.max()) * b * b >= 65536:
+        return bin_block(block, b, h // b, w // b, scratch)
+    a = block[:, : h // b * b, : w // b * b]
+    k = 1
+    while k < b:  # rows, then columns, each halved (contiguous adds first)
+        r = scratch.array(f"front_rows{k}", (n, a.shape[1] // 2, a.shape[2]), np.uint16)
+        a = np.add(a[:, 0::2], a[:, 1::2], out=r)
+        c = scratch.array(f"front_cols{k}", (n, a.shape[1], a.shape[2] // 2), np.uint16)
+        v = a.reshape(n, a.shape[1], a.shape[2] // 2, 2)
+        a = np.add(v[..., 0], v[..., 1], out=c)
+        k *= 2
+    return a
 
 
 def template(mean: np.ndarray) -> np.ndarray:
@@ -100,11 +122,10 @@ def project(x: np.ndarray, sp: Sparse, n_tiles: int) -> np.ndarray:
         v = np.take(x, sp.idx, axis=1).astype(np.float32, copy=False)
         v *= sp.w
         sums = np.add.reduceat(v, sp.starts, axis=1)
-        if len(sp.tiles) >= PUT_TILES:  # many columns: one flat put (measured 6x at 512² frames)
-            flat = (np.arange(len(x))[:, None] * n_tiles + sp.tiles).ravel()
-            np.put(out.reshape(-1), flat, sums)
-        else:
-            out[:, sp.tiles] = sums
+        if len(sp.tiles) == n_tiles:  # every tile has template pixels: already in tile order
+            return sums
+        # one flat put (measured 2x faster than out[:, tiles] = sums at 128², 8x at 512²)
+        np.put(out.reshape(-1), (np.arange(len(x))[:, None] * n_tiles + sp.tiles).ravel(), sums)
     return out
 
 
@@ -116,6 +137,16 @@ def _mean_rows(imgs: np.ndarray, rows: np.ndarray) -> np.ndarray:
     if len(idx) > 1 and np.all(np.diff(idx) == step):
         return imgs[idx[0]: idx[-1] + 1: step].mean(axis=0, dtype=np.float32)
     return imgs[idx].mean(axis=0, dtype=np.float32)
+
+
+def _col_median(d: np.ndarray) -> np.ndarray:
+    """np.median(d, axis=0) of a float32 (rows, T), the same values (the mean of the two middle
+    ones for an even count), by partitioning a transposed copy: 5x faster for 4096 tiles."""
+    k = len(d) // 2
+    p = np.partition(np.ascontiguousarray(d.T), k, axis=1)
+    if len(d) % 2:
+        return p[:, k]
+    return (p[:, :k].max(axis=1) + p[:, k]) / np.float32(2)  # left of k: the smaller half
 
 
 class FrontDelay:
@@ -232,9 +263,10 @@ class FrontDelay:
         if n < 4:
             return values
         means = values[: n * TREND_BLOCK].reshape(n, TREND_BLOCK, -1).mean(axis=1)
-        slope = np.median(np.diff(means, axis=0), axis=0) / TREND_BLOCK
+        slope = _col_median(np.diff(means, axis=0)) / TREND_BLOCK
         rows = np.arange(len(values), dtype=np.float32) - (len(values) - 1) / 2
-        values -= (rows[:, None] * slope[None, :]).reshape(values.shape).astype(np.float32)
+        flat = values.reshape(len(values), -1)
+        flat -= rows[:, None] * slope[None, :]
         return values
 
     def inv_sd(self, e: int, gain: float | None, values: np.ndarray) -> np.ndarray:
@@ -254,5 +286,5 @@ class FrontDelay:
             inv = np.full((self.gy, self.gx), 1.0 / max(sd, 1e-12))
         return np.where(has, inv, 0.0).astype(np.float32)
 
-__all__ = ["EPOCH", "FRONT_PIXELS", "FrontDelay", "Sparse", "front_bin", "project",
+__all__ = ["EPOCH", "FRONT_PIXELS", "FrontDelay", "Sparse", "front_bin", "front_images", "project",
            "sparse_template", "template"]

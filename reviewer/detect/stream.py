@@ -153,8 +153,7 @@ class _Scanner:
         if b == 1:
             images = block  # copied by the front delay
         else:  # binned once (into the reader's reused buffers); tile sums: sums of those bins
-            images = bin_block(block, b, block.shape[1] // b, block.shape[2] // b,
-                               self.read_scratch)
+            images = fr.front_images(block, b, self.read_scratch)
             if not masked:
                 tiles = bin_block(images, self.tile // b, self.gy, self.gx)
         # the epochs' templates and projections run here, in the reader thread (reduce is
