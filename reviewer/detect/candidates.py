@@ -47,14 +47,27 @@ def _peaks(value: np.ndarray, mask: np.ndarray, radius: int) -> list[int]:
 
 
 CAUSES = ("stage", "blank", "beam", "unknown")  # a global event's cause, strongest first
+# a level jump is the beam's when one common factor over all tiles explains at least this share of
+# the change above the noise (drift.explained_factor; measured on 64² frames at 30 counts/px: a
+# +10 % beam step 0.9-1.0, a 24x24 px island of 40 % contrast 0.2-0.3)
+COMMON = 0.5
+# a change over many tiles is global when at least this share of it lies beyond its strongest
+# place (drift.change_beyond; measured: a 24x24 px island on 64² frames 0.01-0.08, stage jumps and
+# field-wide contrast changes on 64²-128² frames 0.64-0.83)
+WIDE = 0.4
 
 
 def global_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float,
                   z_level: float | None = None) -> list[dict]:
     """Blanked frames, jumps of the mean level (beam current), whole-field shifts (stage jumps)
     and changes over a large share of the field, each with its cause. A level jump at a frame
-    where the scene holds a significant local change but few tiles changed is that local change
-    moving the mean, not a beam change: it is left to the local events."""
+    where the scene holds a significant local change that one common factor over all tiles does
+    not explain (the `common` feature below COMMON) is that local change moving the mean, not a
+    beam change: it is left to the local events. Where the common factor was not judged (its
+    change within the noise, or features of an older scan) the share of changed tiles decides.
+    A change over a large share of the tiles is global only when it spreads beyond one place
+    (the `beyond` feature at least WIDE): one large island is local, however many tiles it
+    touches."""
     n = len(f["score"])
     w0 = s.windows[0]
     events: list[dict] = []
@@ -64,6 +77,7 @@ def global_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float,
     score, frac = f["score"], f["frac"]
     gz, gstep = np.abs(f["gz"]), np.abs(f["gstep"])
     shift = f["shift"] if "shift" in f else np.zeros(n, np.int16)
+    common_at = f["common"] if "common" in f else np.full(n, np.nan, np.float32)
     reach = max(s.windows)
     z_level = z_thr if z_level is None else z_level
     for t in _peaks(gz, (gz > z_level) & (gstep > s.global_level), (1 + s.outer) * w0):
@@ -71,7 +85,10 @@ def global_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float,
         # while few tiles changed: that change moved the mean
         k = np.arange(max(t - reach, 0), min(t + reach + 1, n))
         starts = (score[k] > z_thr) & np.isfinite(f["x"][k]) & (np.abs(k + shift[k] - t) <= 1)
-        spread = np.any(frac[max(t - s.separation, 0): t + s.separation + 1] >= s.global_fraction)
+        near = slice(max(t - 1, 0), t + 2)
+        common = common_at[near][np.isfinite(common_at[near])]
+        spread = common.max() >= COMMON if len(common) else np.any(
+            frac[max(t - s.separation, 0): t + s.separation + 1] >= s.global_fraction)
         if spread or not starts.any():
             events.append(dict(frame=int(t), frame_end=int(t), score=float(gz[t]), what="level",
                                cause="beam"))
@@ -79,7 +96,10 @@ def global_events(f: dict[str, np.ndarray], s: DetectSettings, z_thr: float,
     for t in _peaks(jump, jump >= s.jump_px, 2 * max(s.windows)):
         events.append(dict(frame=int(t), frame_end=int(t), score=float(max(score[t], z_thr)),
                            what="field", cause="stage"))
-    wide = (frac >= s.global_fraction) & (score > z_thr)
+    # a change over many tiles is the field's when it spreads beyond one place (drift.change_beyond;
+    # where that was not judged, the share of tiles alone decides)
+    beyond = f["beyond"] if "beyond" in f else np.full(n, np.nan, np.float32)
+    wide = (frac >= s.global_fraction) & (score > z_thr) & ~(np.isfinite(beyond) & (beyond < WIDE))
     for t in _peaks(frac + 1e-3 * score, wide, 2 * max(s.windows)):
         events.append(dict(frame=int(t), frame_end=int(t), score=float(score[t]),
                            what="field", cause="unknown"))
