@@ -23,7 +23,7 @@ from reviewer.detect.stream import NEW_FEATURES, ScanResult
 FORMAT = 3  # 3: one memory-mappable .npy per feature (2: features.npz)
 # The detector's version: bump it whenever a change to reviewer/detect/ changes the features or the
 # candidates for the same movie and settings; a cached scan of another version is never reused.
-DETECTOR_VERSION = "2026.12-i"
+DETECTOR_VERSION = "2026.12-k"
 FEATURES = "features"
 
 

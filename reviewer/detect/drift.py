@@ -73,6 +73,7 @@ POLISH = 0.125  # cells: then a downhill search on a grid this fine, at most POL
 POLISH_STEPS = 8
 FIT_CELLS = 64  # a stage jump is judged on at most this many cells a side (the central ones)
 SPREAD = 1.25  # times the noise floor the best-fitting cells' change must exceed to be judged
+BEYOND_CELLS = 3.0  # cells: a local change's reach from its strongest place (change_beyond)
 SPLINE = 3  # order of the spline that moves the image (cubic: sub-cell shifts of a coarse grid)
 
 
@@ -192,3 +193,76 @@ def explained_shift(before: np.ndarray, after: np.ndarray, upsample: int = 10,
     if not e0 > 2.0 * floor:
         return size, 0.0
     return size, float(np.clip((e0 - e1) / (e0 - floor), 0.0, 1.0))
+
+
+def explained_factor(before: np.ndarray, after: np.ndarray, noise: np.ndarray) -> float:
+    """The share of the change from `before` to `after` (tile means) that one common factor
+    explains, after ≈ (1 + g)·before with g fitted by weighted least squares over every cell, in
+    noise units (`noise`: the variance of after − before per cell): (E0 − E1) / (E0 − n) with E0
+    and E1 the energies without and after the factor and n the cells (the energy of pure noise).
+    A beam-current step scales every cell alike and is explained almost wholly; a local change,
+    however much it moves the mean, is concentrated on its cells and hardly at all. NaN when the
+    change does not stand out of the noise over the field (E0 within 3 standard deviations of
+    n: χ²ₙ has variance 2n), where the share says nothing."""
+    b = np.asarray(before, np.float64)
+    w = 1.0 / np.maximum(np.broadcast_to(np.asarray(noise, np.float64), b.shape), 1e-12).ravel()
+    d = np.asarray(after, np.float64).ravel() - b.ravel()
+    b = b.ravel()
+    e0 = float(np.sum(d * d * w))
+    n = d.size
+    bb = float(np.sum(b * b * w))
+    if not e0 > n + 3.0 * np.sqrt(2.0 * n) or not bb > 0:
+        return float("nan")
+    g = float(np.sum(d * b * w)) / bb
+    e1 = float(np.sum((d - g * b) ** 2 * w))
+    return float(np.clip((e0 - e1) / (e0 - n), 0.0, 1.0))
+
+
+
+def change_beyond(before: np.ndarray, after: np.ndarray, noise: np.ndarray,
+                  radius: float = BEYOND_CELLS) -> float:
+    """The share of the change from `before` to `after` (cells of a grid; noise: the variance of
+    after − before per cell), in noise units and after the field's typical factor (the median cell's) is taken out, that lies
+    farther than `radius` cells from its strongest place (the peak of the cells' energies above
+    the noise, e = max(r² / noise − 1, 0), blurred over 3x3 cells). Near 0 for one local change
+    however many cells it touches (its spill onto every other cell through the beam
+    normalisation is the common factor); large for a change spread over the field. NaN when no
+    cell rose above the noise."""
+    from scipy import ndimage
+
+    b = np.asarray(before, np.float64)
+    w = 1.0 / np.maximum(np.broadcast_to(np.asarray(noise, np.float64), b.shape), 1e-12)
+    d = np.asarray(after, np.float64) - b
+    g = float(np.median(d / np.where(b > 0, b, np.inf)))  # the field's typical factor
+    e = np.maximum((d - g * b) ** 2 * w - 1.0, 0.0)
+    total = float(e.sum())
+    if not total > 0:
+        return float("nan")
+    py, px = np.unravel_index(int(np.argmax(ndimage.uniform_filter(e, 3, mode="constant"))),
+                              e.shape)
+    yy, xx = np.indices(e.shape)
+    return float(e[(yy - py) ** 2 + (xx - px) ** 2 > radius * radius].sum() / total)
+
+
+def level_factors(xn: np.ndarray, level: np.ndarray, blank: np.ndarray, lo: int, hi: int,
+                  w: int, gain: float, jump: float, checks: int) -> list[tuple[int, float]]:
+    """(row, explained_factor) at the `checks` strongest jumps of the beam level among rows
+    lo..hi-1 of xn (tile sums divided by their frame's level `level`; `blank`: blanked rows):
+    rows where the mean level of the w rows from it differs from that of the w rows before by at
+    least `jump` (relative), no blanked row among them; the raw tile sums' change between those
+    w-row means is judged, with the shot noise gain × (before + after) / w."""
+    lev = np.nan_to_num(np.asarray(level, np.float64), nan=0.0)
+    c = np.concatenate([[0.0], np.cumsum(lev)])
+    r = np.arange(max(lo, w), min(hi, len(lev) - w + 1))
+    step = np.abs((c[r + w] - c[r]) / np.maximum(c[r] - c[r - w], 1e-12) - 1.0)
+    held = np.concatenate([[0], np.cumsum(blank)])
+    step[held[r + w] - held[r - w] > 0] = 0.0
+    keep = step >= jump
+    r, step = r[keep], step[keep]
+    out = []
+    for t in r[np.argsort(-step, kind="stable")][:checks]:
+        raw = xn[t - w: t + w] * lev[t - w: t + w, None, None]
+        before, after = raw[:w].mean(0), raw[w:].mean(0)
+        if np.all(before > 0) and np.all(after > 0):
+            out.append((int(t), explained_factor(before, after, gain * (before + after) / w)))
+    return out

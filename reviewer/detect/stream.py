@@ -13,7 +13,12 @@ import numpy as np
 import pandas as pd
 
 from reviewer.detect import fronts as fr
-from reviewer.detect.drift import explained_shift, phase_shift
+from reviewer.detect.drift import (
+    change_beyond,
+    explained_shift,
+    level_factors,
+    phase_shift,
+)
 from reviewer.detect.pattern import PatternTrack
 from reviewer.detect.pulse import null_pulse_tests, pulse_chunk
 from reviewer.detect.readahead import piece_frames, read_ahead
@@ -117,6 +122,10 @@ class _Scanner:
         self.f["sign"] = self._alloc("sign", n, np.int8)
         self.f["shift"] = self._alloc("shift", n, np.int16)  # onset − frame where located
         self.f["blank"] = self._alloc("blank", n, np.uint8)
+        self.f["common"] = self._alloc("common", n, f32)  # explained_factor at level jumps
+        self.f["common"][:] = np.nan
+        self.f["beyond"] = self._alloc("beyond", n, f32)  # change_beyond where a jump was judged
+        self.f["beyond"][:] = np.nan
         for name in ("pmax", "px", "py"):  # short-pulse statistic (pulse.py), best tile
             self.f[name] = self._alloc(name, n, f32)
         self.f["pdur"] = self._alloc("pdur", n, np.int8)
@@ -302,6 +311,8 @@ class _Scanner:
             noise = self.gain * (before + after) / w0 if self.gain is not None \
                 and np.all(before > 0) and np.all(after > 0) else None
             shift, explained = explained_shift(before, after, noise=noise)
+            if noise is not None:
+                self.f["beyond"][self.scored + j] = change_beyond(before, after, noise)
             if explained >= JUMP_EXPLAINED:
                 self.f["jump"][self.scored + j] = shift * self.tile
 
@@ -394,6 +405,13 @@ class _Scanner:
         # whole-field shift at the strongest changes and where many tiles changed at once (stage
         # jump test): kept where the shift explains most of the change
         self._stage_jumps(xn, lo, cs)
+        if self.gain is not None:  # beam-current jumps told from local changes
+            a = self.base
+            for t, share in level_factors(xn, self.f["level"][a: a + self.fill],
+                                          self.f["blank"][a: a + self.fill] != 0, lo, hi,
+                                          self.s.windows[0], self.gain,
+                                          0.5 * self.s.global_level, JUMP_CHECKS):
+                self.f["common"][a + t] = share
         if self.fronts is not None:
             self._front_scores(cs, upto)
         sl = slice(self.scored, upto)
