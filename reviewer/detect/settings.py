@@ -16,8 +16,9 @@ class DetectSettings:
 
     Threshold: `false_alarms` is the expected number of false alarms over the whole movie (the
     one knob; `reviewer scan --false-alarms N`). A frame is a candidate when its calibrated score
-    z exceeds ``z* = Φ⁻¹(1 − a / 2N)``, N the number of frames and a = false_alarms × FA_GAIN (the
-    measured ratio of candidates to exceedances, see candidates.threshold_for and
+    z exceeds ``z* = Φ⁻¹(1 − a / 2N)``, N the number of frames and a = false_alarms × FA_GAIN ×
+    the test's share of the budget (the step, pulse and level tests' shares sum to one; with
+    `--patterns` the pattern test has a share of its own on top: see candidates.threshold_for and
     benchmarks/bench_false_alarms.py). `sensitivity` (deprecated, kept for `--sensitivity`)
     divides z* on top.
     """
