@@ -9,13 +9,13 @@ from scipy import ndimage, stats
 from reviewer.detect import DetectSettings, scan_movie
 from reviewer.detect.fronts import (
     FrontDelay,
-    _col_median,
     front_images,
     project,
     sparse_template,
     template,
 )
 from reviewer.detect.reduce import Scratch
+from reviewer.detect.statistics import column_median
 from reviewer.movie import ArrayMovie
 
 
@@ -89,7 +89,7 @@ def test_trend_median_is_numpys():
     for rows in (1, 2, 15, 16):
         for d in (rng.standard_normal((rows, 300)), rng.integers(0, 3, (rows, 300))):
             d = d.astype(np.float32)
-            assert np.array_equal(_col_median(d), np.median(d, axis=0))
+            assert np.array_equal(column_median(d), np.median(d, axis=0))
 
 
 def test_no_step_where_the_template_changes():

@@ -43,6 +43,13 @@ def _drawing(fv) -> list[list[tuple[str, object]]]:
     return [_cells(fv.render_line(y)) for y in range(fv.size.height)]
 
 
+async def _shown(fv, pilot, image) -> list[list[tuple[str, object]]]:
+    """Show `image`, let the screen update, and return the drawing."""
+    fv.show(image)
+    await pilot.pause()
+    return _drawing(fv)
+
+
 def _image() -> np.ndarray:
     rng = np.random.default_rng(3)
     return rng.integers(0, 4000, size=(24, 40)).astype(np.uint16)  # 12 x 40 cells, no margin
@@ -53,18 +60,14 @@ async def test_a_new_frame_draws_again_only_the_rows_whose_cells_changed():
     fv = FrameView(system="256", prefetch=False)
     async with One(fv).run_test(size=(40, 12)) as pilot:
         first = _image()
-        fv.show(first)
-        await pilot.pause()
-        before = _drawing(fv)
+        before = await _shown(fv, pilot, first)
         second = first.copy()
         # swaps keep every value (so the percentile contrast is the same): pixel rows 8/9 and 20
         # share the cell rows 4 and 10 (two pixel rows a cell)
         second[8, :5], second[9, :5] = first[9, :5], first[8, :5].copy()
         second[20, [3, 30]] = first[20, [30, 3]]
         sent = _sent_rows(fv.app, fv)
-        fv.show(second)
-        await pilot.pause()
-        after = _drawing(fv)
+        after = await _shown(fv, pilot, second)
         changed = {y for y in range(12) if before[y] != after[y]}
         assert changed == {4, 10}
         assert sorted(sent) == [4, 10]
@@ -75,13 +78,10 @@ async def test_the_same_frame_shown_again_draws_no_row_and_a_moved_mark_only_its
     fv = FrameView(system="256", prefetch=False)
     async with One(fv).run_test(size=(40, 12)) as pilot:
         image = _image()
-        fv.show(image)
-        await pilot.pause()
+        await _shown(fv, pilot, image)
         sent = _sent_rows(fv.app, fv)
-        fv.show(image)
-        await pilot.pause()
+        before = await _shown(fv, pilot, image)
         assert sent == []
-        before = _drawing(fv)
         fv.set_mark(20.0, 12.0)  # pixel row 12: cell row 6, corners on rows 5 and 7
         await pilot.pause()
         after = _drawing(fv)

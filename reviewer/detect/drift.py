@@ -95,7 +95,7 @@ def trimmed_noise_floor() -> float:
     x·f₁(x) = f₃(x) for the χ² densities (worked by hand from the χ² density). In closed form
     (no scipy.stats: its import alone took 0.5 s of a scan): q = z² with z the (1 + TRIM) / 2
     normal quantile, P(χ²₃ < q) = erf(z/√2) − z·√(2/π)·exp(−z²/2) (the χ²₃ CDF, from memory;
-    tests/test_detect_drift.py checks it against scipy.stats.chi2)."""
+    tests/test_detect_reference.py checks it against scipy.stats.chi2)."""
     z = NormalDist().inv_cdf((1.0 + TRIM) / 2.0)
     return (math.erf(z / math.sqrt(2.0)) - z * math.sqrt(2.0 / math.pi) * math.exp(-z * z / 2)) \
         / TRIM
@@ -218,12 +218,11 @@ def explained_factor(before: np.ndarray, after: np.ndarray, noise: np.ndarray) -
     return float(np.clip((e0 - e1) / (e0 - n), 0.0, 1.0))
 
 
-
 def change_beyond(before: np.ndarray, after: np.ndarray, noise: np.ndarray,
                   radius: float = BEYOND_CELLS) -> float:
     """The share of the change from `before` to `after` (cells of a grid; noise: the variance of
-    after − before per cell), in noise units and after the field's typical factor (the median cell's) is taken out, that lies
-    farther than `radius` cells from its strongest place (the peak of the cells' energies above
+    after − before per cell), in noise units and after the field's typical factor (the median
+    cell's) is taken out, that lies farther than `radius` cells from its strongest place (the peak of the cells' energies above
     the noise, e = max(r² / noise − 1, 0), blurred over 3x3 cells). Near 0 for one local change
     however many cells it touches (its spill onto every other cell through the beam
     normalisation is the common factor); large for a change spread over the field. NaN when no

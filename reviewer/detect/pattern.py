@@ -7,8 +7,8 @@ resolution (b = 2, more for frames over PATTERN_PIXELS). With w-frame windows af
     d_p = A_p − B_p,   S_p = A_p + B_p,   E[d_p² | S_p] = g·S_p under Poisson counts (gain g)
 
 (given S_p = s, A_p is binomial(s, ½) when nothing changed: E[(2A − s)²] = s exactly), so every bin
-adds a χ²₁-like term d_p²/(g·S_p). Per pattern tile T (CELL × CELL bins, from one bin in) the part explained by the
-tile's own level change (d ∝ S: an island, the beam) is taken out,
+adds a χ²₁-like term d_p²/(g·S_p). Per pattern tile T (CELL × CELL bins, from one bin in) the
+part explained by the tile's own level change (d ∝ S: an island, the beam) is taken out,
 
     Q_T = Σ_T d²/S − (Σ_T d)² / Σ_T S   ~ g·χ²(CELL² − 1) when nothing changed,
 

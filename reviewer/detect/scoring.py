@@ -11,7 +11,7 @@ import numpy as np
 
 from reviewer.detect.locate import TREND_MIN_W, locate, onset_shift
 from reviewer.detect.reduce import SHAPES, Scratch, pooled_absmax
-from reviewer.detect.statistics import effective_tests, step_weight
+from reviewer.detect.statistics import column_median, effective_tests, step_weight
 
 DECIMATE_MIN_W = 8  # windows this long are evaluated every 2nd frame (their peaks are ≥ w wide)
 TREND_SPAN = 256  # frames over which a tile's trend is taken as constant
@@ -40,7 +40,8 @@ def noise_gain(xn: np.ndarray) -> float | None:
     if len(head) < 2 or not np.all(mu > 0):
         return None
     step = max(1, head.shape[1] // GAIN_TILES)  # a median over tiles: a spread sample will do
-    var = (1.4826 * _col_median(np.abs(np.diff(head[:, ::step], axis=0)))) ** 2 / 2.0
+    mad = column_median(np.abs(np.diff(head[:, ::step], axis=0)), upper=True)
+    var = (1.4826 * mad) ** 2 / 2.0
     return float(np.median(var / mu[::step]))
 
 
@@ -85,14 +86,6 @@ def _step(cum: np.ndarray, c0: int, a: int, b: int, w: int, outer: int) -> np.nd
         t -= (cum[j + w + big: j + w + big + m] - cum[j + w: j + w + m]
               - cum[j - w: j - w + m] + cum[j - w - big: j - w - big + m]) * np.float32(c / big)
     return t
-
-
-def _col_median(a: np.ndarray) -> np.ndarray:
-    """Median of each column of a (rows, T) (the upper one for an even count; partition on a
-    transposed copy is several times faster than np.median along axis 0)."""
-    r = np.ascontiguousarray(a.T)
-    k = r.shape[1] // 2
-    return np.partition(r, k, axis=1)[:, k]
 
 
 def _window_sums(seg: np.ndarray, windows: tuple[int, ...], ws: Scratch) -> dict[int, np.ndarray]:
@@ -164,7 +157,7 @@ def _maps(xn, lo, hi, windows, outer, inv_sd, robust=True, ws: Scratch | None = 
                     parts = max(1, step * (j1 - j0) // TREND_SPAN)
                     edges = np.linspace(0, j1 - j0, parts + 1).astype(int)
                     for e0, e1 in zip(edges[:-1], edges[1:], strict=True):
-                        t[e0:e1] -= _col_median(t[e0:e1: max(1, (e1 - e0) // 64)])
+                        t[e0:e1] -= column_median(t[e0:e1: max(1, (e1 - e0) // 64)], upper=True)
             gain = inv * np.float32(1.0 / (w * step_weight(w, outer)[1]) if not outer
                                     else 1.0 / step_weight(w, outer)[1])
             if robust and t.size > 100:  # robust scale of the z values, from a subsample

@@ -105,8 +105,7 @@ def chunk_plan(movie, s: DetectSettings) -> list[tuple[int, int, bool, int]]:
         if end - scored >= chunk + ctx:
             upto = end - ctx
             if fd is not None:  # as _Scanner._aligned
-                a = fd.reach + (upto - fd.reach) // fd.epoch * fd.epoch
-                upto = a if a > scored else upto
+                upto = fd.aligned(upto, scored)
             rows += upto - scored
             closes = rows >= DRIFT_EVERY or upto >= n
             rows = 0 if closes else rows

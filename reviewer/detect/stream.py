@@ -150,12 +150,11 @@ class _Scanner:
             block = np.where(finite, block, 0)
         pt = self.pattern
         bins = pt.push(block, finite) if pt is not None else None
-        if masked:
-            pass
-        elif bins is not None and self.fronts is None and self.tile % pt.b == 0:
-            tiles = bin_block(bins, self.tile // pt.b, self.gy, self.gx)  # sums of those bins
-        elif self.fronts is None or self.front_b == 1:
-            tiles = bin_block(block, self.tile, self.gy, self.gx)
+        if not masked:  # (else the masked sums above)
+            if bins is not None and self.fronts is None and self.tile % pt.b == 0:
+                tiles = bin_block(bins, self.tile // pt.b, self.gy, self.gx)  # sums of those bins
+            elif self.fronts is None or self.front_b == 1:
+                tiles = bin_block(block, self.tile, self.gy, self.gx)
         if self.fronts is None:
             return tiles
         b = self.front_b
@@ -193,8 +192,7 @@ class _Scanner:
         fd = self.fronts
         if fd is None:
             return upto
-        a = fd.reach + (upto + self.origin - fd.reach) // fd.epoch * fd.epoch - self.origin
-        return a if a > self.scored else upto
+        return fd.aligned(upto + self.origin, self.scored + self.origin) - self.origin
 
     def _feed_rows(self, start: int, tiles: np.ndarray, front: np.ndarray | None) -> None:
         k = len(tiles)
